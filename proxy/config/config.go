@@ -1,0 +1,159 @@
+// Package config defines riffle's YAML configuration, loads it strictly
+// (unknown keys are errors), fills documented defaults and validates it,
+// reporting every problem with its key path.
+//
+// A loaded *Config is treated as immutable: hot reload builds a new one and
+// swaps a pointer, so values may be shared between goroutines freely.
+package config
+
+import "time"
+
+// Config is the whole of riffle.yaml.
+type Config struct {
+	// Listen is the data-plane address (recommendation routes, pass-through,
+	// POST /feedback). Default 127.0.0.1:8080.
+	Listen string `yaml:"listen"`
+	// Admin is the admin listener's address (/metrics, /status, /healthz,
+	// /readyz, /api/v1/...). Default 127.0.0.1:9464.
+	Admin string `yaml:"admin"`
+	// AdminTokenFile, when set, names a file holding the bearer token that
+	// mutating admin endpoints require.
+	AdminTokenFile string `yaml:"admin_token_file"`
+	// Pprof mounts net/http/pprof on the admin listener when true.
+	Pprof bool `yaml:"pprof"`
+	// Store is the bbolt file's path. Default riffle.db.
+	Store string `yaml:"store"`
+	// StoreRetention deletes final impression and event records older than
+	// this; aggregates stay. Zero keeps everything.
+	StoreRetention time.Duration `yaml:"store_retention"`
+	// Queue tunes the store's group-commit writer.
+	Queue Queue `yaml:"queue"`
+	// MaxBodyBytes limits request bodies on routes and /feedback.
+	// Default 1 MiB; larger bodies get 413.
+	MaxBodyBytes int64 `yaml:"max_body_bytes"`
+	// OnIncumbentFailure is "fail" (default: 502 with a JSON reason) or
+	// "serve-challenger".
+	OnIncumbentFailure string `yaml:"on_incumbent_failure"`
+	// ShutdownGrace bounds how long in-flight requests may run after
+	// SIGTERM. Default 10s.
+	ShutdownGrace time.Duration `yaml:"shutdown_grace"`
+
+	Incumbent  Backend `yaml:"incumbent"`
+	Challenger Backend `yaml:"challenger"`
+	// Routes are the recommendation routes that are interleaved; every other
+	// path passes through to the incumbent.
+	Routes []Route `yaml:"routes"`
+	// User says where the user key is read from.
+	User User `yaml:"user"`
+	// Experiment describes the running comparison.
+	Experiment Experiment `yaml:"experiment"`
+}
+
+// Backend is one model server.
+type Backend struct {
+	// URL is the base URL; the request's path and query are appended.
+	URL string `yaml:"url"`
+	// Timeout is the per-request deadline. Default 200ms.
+	Timeout time.Duration `yaml:"timeout"`
+}
+
+// Route is one interleaved recommendation route.
+type Route struct {
+	// Path is a chi route pattern, e.g. /v1/recommend.
+	Path string `yaml:"path"`
+	// List is an RFC 6901 pointer to the ranked array in the response.
+	List string `yaml:"list"`
+	// ID is an RFC 6901 pointer to the identity inside one element.
+	ID string `yaml:"id"`
+	// Slots is the merged length; 0 means the incumbent list's length.
+	Slots int `yaml:"slots"`
+}
+
+// User names exactly one source of the user key.
+type User struct {
+	Header string `yaml:"header"`
+	Query  string `yaml:"query"`
+	// Body is an RFC 6901 pointer into a JSON request body.
+	Body string `yaml:"body"`
+}
+
+// Queue tunes the store's group commit.
+type Queue struct {
+	// Size is the bounded queue's capacity. Default 65536.
+	Size int `yaml:"size"`
+	// Batch is the most records per commit. Default 1024.
+	Batch int `yaml:"batch"`
+	// Interval is the longest a record waits before a commit. Default 5ms.
+	Interval time.Duration `yaml:"interval"`
+}
+
+// Experiment is the comparison being run.
+type Experiment struct {
+	// Name identifies the experiment in the store, metrics and reports.
+	Name string `yaml:"name"`
+	// Policy is balanced, team-draft, probabilistic or optimized.
+	// Default team-draft.
+	Policy string `yaml:"policy"`
+	// Tau is the probabilistic policy's softmax exponent. Default 3.
+	Tau float64 `yaml:"tau"`
+	// Credit is the optimized policy's rank-difference credit: "linear"
+	// (default) or "inverse-rank".
+	Credit string `yaml:"credit"`
+	// Ramp is the share of users, in [0,1], who get interleaved lists.
+	// Default 1 when no schedule is given.
+	Ramp *float64 `yaml:"ramp"`
+	// Start is when the experiment's schedule starts (RFC 3339). Zero means
+	// the time the store first saw this experiment.
+	Start time.Time `yaml:"start"`
+	// Schedule stages the ramp: each stage's ramp applies from Start+After.
+	Schedule []Stage `yaml:"schedule"`
+	// MaxChallengerSlots caps the challenger's slots per list; 0 = no cap.
+	MaxChallengerSlots int `yaml:"max_challenger_slots"`
+	// ChallengerFromSlot is the first 1-based slot the challenger may fill;
+	// 0 or 1 = any slot.
+	ChallengerFromSlot int `yaml:"challenger_from_slot"`
+	// Window is the attribution window after an impression. Default 30m.
+	Window time.Duration `yaml:"window"`
+	// Events maps event types to weights. Default {click: 1, purchase: 3}.
+	Events map[string]float64 `yaml:"events"`
+	// Debias weights each event by 1/p(rank), p(rank) = (1/rank)^eta.
+	Debias Debias `yaml:"debias"`
+	// Alpha is the significance level. Default 0.05.
+	Alpha float64 `yaml:"alpha"`
+	// Power is the planned power for "needed". Default 0.8.
+	Power float64 `yaml:"power"`
+	// MDE is the minimum detectable Delta for "needed". Default 0.02.
+	MDE float64 `yaml:"mde"`
+	// Margin is the non-inferiority/equivalence margin on Delta. Default 0.
+	Margin float64 `yaml:"margin"`
+	// Guardrails halt the challenger automatically.
+	Guardrails Guardrails `yaml:"guardrails"`
+}
+
+// Stage is one step of a staged ramp.
+type Stage struct {
+	After time.Duration `yaml:"after"`
+	Ramp  float64       `yaml:"ramp"`
+}
+
+// Debias configures position debiasing of credit.
+type Debias struct {
+	// Eta is the position-bias exponent; 0 disables debiasing.
+	Eta float64 `yaml:"eta"`
+}
+
+// Guardrails are optional automatic halts; a zero field disables its guard.
+type Guardrails struct {
+	// ErrorRate trips when the challenger's error share over Window exceeds it.
+	ErrorRate float64 `yaml:"error_rate"`
+	// LatencyP99 trips when the challenger's p99 latency over Window exceeds it.
+	LatencyP99 time.Duration `yaml:"latency_p99"`
+	// Window is the sliding window for the two above. Default 1m.
+	Window time.Duration `yaml:"window"`
+	// MinRequests is how many challenger calls the window needs before the
+	// guards above may trip. Default 100.
+	MinRequests int `yaml:"min_requests"`
+	// Losing trips when the sequential test says the challenger is
+	// significantly worse.
+	Losing bool `yaml:"losing"`
+}

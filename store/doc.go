@@ -1,0 +1,3 @@
+// Package store keeps riffle's durable state in a bbolt file: impression
+// provenance records, feedback events, outcomes and aggregates.
+package store
