@@ -3,7 +3,13 @@
 // reporting every problem with its key path.
 //
 // A loaded *Config is treated as immutable: hot reload builds a new one and
-// swaps a pointer, so values may be shared between goroutines freely.
+// swaps a pointer, so values may be shared between goroutines freely. A
+// Reloader's methods are safe for concurrent use.
+//
+// Some settings are bound to resources opened once at start and need a
+// restart to change (see RestartOnly): listen, admin, store,
+// store_retention, queue.* and pprof. Every other setting may be changed
+// by a reload.
 package config
 
 import "time"
@@ -17,11 +23,15 @@ type Config struct {
 	// /readyz, /api/v1/...). Default 127.0.0.1:9464.
 	Admin string `yaml:"admin"`
 	// AdminTokenFile, when set, names a file holding the bearer token that
-	// mutating admin endpoints require.
+	// mutating admin endpoints require; it must be readable and non-empty.
+	// Empty means those endpoints are open (keep the admin listener off
+	// public networks). See AdminToken.
 	AdminTokenFile string `yaml:"admin_token_file"`
 	// Pprof mounts net/http/pprof on the admin listener when true.
+	// Default false.
 	Pprof bool `yaml:"pprof"`
-	// Store is the bbolt file's path. Default riffle.db.
+	// Store is the bbolt file's path, relative to the working directory
+	// unless absolute. Default riffle.db.
 	Store string `yaml:"store"`
 	// StoreRetention deletes final impression and event records older than
 	// this; aggregates stay. Zero keeps everything.
@@ -38,10 +48,12 @@ type Config struct {
 	// SIGTERM. Default 10s.
 	ShutdownGrace time.Duration `yaml:"shutdown_grace"`
 
-	Incumbent  Backend `yaml:"incumbent"`
+	// Incumbent is the model serving today; it is required.
+	Incumbent Backend `yaml:"incumbent"`
+	// Challenger is the newly trained model; it is required.
 	Challenger Backend `yaml:"challenger"`
 	// Routes are the recommendation routes that are interleaved; every other
-	// path passes through to the incumbent.
+	// path passes through to the incumbent. At least one is required.
 	Routes []Route `yaml:"routes"`
 	// User says where the user key is read from.
 	User User `yaml:"user"`
@@ -51,29 +63,35 @@ type Config struct {
 
 // Backend is one model server.
 type Backend struct {
-	// URL is the base URL; the request's path and query are appended.
+	// URL is the absolute http or https base URL, without query or
+	// fragment; the request's path and query are appended. Required.
 	URL string `yaml:"url"`
-	// Timeout is the per-request deadline. Default 200ms.
+	// Timeout is the per-request deadline, positive. Default 200ms.
 	Timeout time.Duration `yaml:"timeout"`
 }
 
 // Route is one interleaved recommendation route.
 type Route struct {
-	// Path is a chi route pattern, e.g. /v1/recommend.
+	// Path is a chi route pattern starting with "/", e.g. /v1/recommend;
+	// unique among routes. Required.
 	Path string `yaml:"path"`
-	// List is an RFC 6901 pointer to the ranked array in the response.
+	// List is an RFC 6901 pointer to the ranked array in the response;
+	// empty means the whole response is the array.
 	List string `yaml:"list"`
-	// ID is an RFC 6901 pointer to the identity inside one element.
+	// ID is an RFC 6901 pointer to the identity inside one element; empty
+	// means the element itself is its identity.
 	ID string `yaml:"id"`
 	// Slots is the merged length; 0 means the incumbent list's length.
 	Slots int `yaml:"slots"`
 }
 
-// User names exactly one source of the user key.
+// User names exactly one source of the user key; there is no default.
 type User struct {
+	// Header is a request header field name, e.g. Shopper-Id.
 	Header string `yaml:"header"`
-	Query  string `yaml:"query"`
-	// Body is an RFC 6901 pointer into a JSON request body.
+	// Query is a query parameter name.
+	Query string `yaml:"query"`
+	// Body is an RFC 6901 pointer into a JSON request body, e.g. /user/id.
 	Body string `yaml:"body"`
 }
 
@@ -81,7 +99,7 @@ type User struct {
 type Queue struct {
 	// Size is the bounded queue's capacity. Default 65536.
 	Size int `yaml:"size"`
-	// Batch is the most records per commit. Default 1024.
+	// Batch is the most records per commit, at most Size. Default 1024.
 	Batch int `yaml:"batch"`
 	// Interval is the longest a record waits before a commit. Default 5ms.
 	Interval time.Duration `yaml:"interval"`
@@ -89,7 +107,8 @@ type Queue struct {
 
 // Experiment is the comparison being run.
 type Experiment struct {
-	// Name identifies the experiment in the store, metrics and reports.
+	// Name identifies the experiment in the store, metrics and reports:
+	// 1 to 64 letters, digits, '.', '_' or '-'. Required.
 	Name string `yaml:"name"`
 	// Policy is balanced, team-draft, probabilistic or optimized.
 	// Default team-draft.
@@ -99,54 +118,66 @@ type Experiment struct {
 	// Credit is the optimized policy's rank-difference credit: "linear"
 	// (default) or "inverse-rank".
 	Credit string `yaml:"credit"`
-	// Ramp is the share of users, in [0,1], who get interleaved lists.
-	// Default 1 when no schedule is given.
+	// Ramp is the share of users, in [0,1], who get interleaved lists
+	// before the first schedule stage applies (always, without a
+	// schedule). Default 1 without a schedule, 0 with one. See
+	// EffectiveRamp.
 	Ramp *float64 `yaml:"ramp"`
 	// Start is when the experiment's schedule starts (RFC 3339). Zero means
 	// the time the store first saw this experiment.
 	Start time.Time `yaml:"start"`
-	// Schedule stages the ramp: each stage's ramp applies from Start+After.
+	// Schedule stages the ramp: each stage's ramp applies from Start+After
+	// until the next stage's. Stages are listed in increasing After.
 	Schedule []Stage `yaml:"schedule"`
 	// MaxChallengerSlots caps the challenger's slots per list; 0 = no cap.
 	MaxChallengerSlots int `yaml:"max_challenger_slots"`
 	// ChallengerFromSlot is the first 1-based slot the challenger may fill;
 	// 0 or 1 = any slot.
 	ChallengerFromSlot int `yaml:"challenger_from_slot"`
-	// Window is the attribution window after an impression. Default 30m.
+	// Window is the attribution window after an impression, positive.
+	// Default 30m.
 	Window time.Duration `yaml:"window"`
-	// Events maps event types to weights. Default {click: 1, purchase: 3}.
+	// Events maps event types (names as for Name) to positive weights.
+	// Empty means the default {click: 1, purchase: 3}.
 	Events map[string]float64 `yaml:"events"`
 	// Debias weights each event by 1/p(rank), p(rank) = (1/rank)^eta.
 	Debias Debias `yaml:"debias"`
-	// Alpha is the significance level. Default 0.05.
+	// Alpha is the significance level, in (0,1). Default 0.05.
 	Alpha float64 `yaml:"alpha"`
-	// Power is the planned power for "needed". Default 0.8.
+	// Power is the planned power for "needed", in (0,1). Default 0.8.
 	Power float64 `yaml:"power"`
-	// MDE is the minimum detectable Delta for "needed". Default 0.02.
+	// MDE is the minimum detectable Delta for "needed", in (0,0.5).
+	// Default 0.02.
 	MDE float64 `yaml:"mde"`
-	// Margin is the non-inferiority/equivalence margin on Delta. Default 0.
+	// Margin is the non-inferiority/equivalence margin on Delta, in
+	// [0,0.5). Default 0.
 	Margin float64 `yaml:"margin"`
 	// Guardrails halt the challenger automatically.
 	Guardrails Guardrails `yaml:"guardrails"`
 }
 
-// Stage is one step of a staged ramp.
+// Stage is one step of a staged ramp; both fields are required.
 type Stage struct {
+	// After is how long after the experiment's start the stage applies.
 	After time.Duration `yaml:"after"`
-	Ramp  float64       `yaml:"ramp"`
+	// Ramp is the share of users, in [0,1], interleaved during the stage.
+	Ramp float64 `yaml:"ramp"`
 }
 
 // Debias configures position debiasing of credit.
 type Debias struct {
-	// Eta is the position-bias exponent; 0 disables debiasing.
+	// Eta is the position-bias exponent, at least 0; 0 (the default)
+	// disables debiasing.
 	Eta float64 `yaml:"eta"`
 }
 
 // Guardrails are optional automatic halts; a zero field disables its guard.
 type Guardrails struct {
-	// ErrorRate trips when the challenger's error share over Window exceeds it.
+	// ErrorRate trips when the challenger's error share over Window
+	// exceeds it; in [0,1).
 	ErrorRate float64 `yaml:"error_rate"`
-	// LatencyP99 trips when the challenger's p99 latency over Window exceeds it.
+	// LatencyP99 trips when the challenger's p99 latency over Window
+	// exceeds it; below challenger.timeout, or it could never trip.
 	LatencyP99 time.Duration `yaml:"latency_p99"`
 	// Window is the sliding window for the two above. Default 1m.
 	Window time.Duration `yaml:"window"`
