@@ -2,11 +2,261 @@ package main
 
 import (
 	"context"
+	"errors"
+	"flag"
 	"fmt"
 	"io"
+	"io/fs"
+	"slices"
+	"strings"
+	"time"
+
+	"riffle/merge/verdict"
+	"riffle/store"
 )
 
+// reportFlags are riffle report's settings.
+type reportFlags struct {
+	Stores     []string
+	Experiment string
+	Format     string
+	Timeout    time.Duration
+	Params     verdict.Params
+}
+
+// storeList is a repeatable --store flag.
+type storeList []string
+
+func (s *storeList) String() string { return strings.Join(*s, ",") }
+
+func (s *storeList) Set(v string) error {
+	if v == "" {
+		return errors.New("empty path")
+	}
+	*s = append(*s, v)
+	return nil
+}
+
+// runReport merges the aggregates of one or many store files (one per
+// sidecar) and prints the experiment's statistics and verdict: exit 0, 1
+// when a store cannot be read, 2 on bad flags.
 func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int {
-	fmt.Fprintln(stderr, "riffle report: not built yet")
-	return 1
+	f, err := parseReportFlags(args, stderr)
+	if err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			return 0
+		}
+		if !errors.Is(err, errUsage) {
+			fmt.Fprintf(stderr, "riffle report: %v\n", err)
+		}
+		return 2
+	}
+	agg, err := mergeStores(ctx, f.Stores, f.Experiment, f.Timeout)
+	if err != nil {
+		fmt.Fprintf(stderr, "riffle report: %v\n", err)
+		return 1
+	}
+	st, err := verdict.Compute(verdict.FromAggregate(agg, f.Params))
+	if err != nil {
+		fmt.Fprintf(stderr, "riffle report: experiment %q: %v\n", agg.Experiment, err)
+		return 1
+	}
+	if f.Format == "json" {
+		err = writeJSON(stdout, st)
+	} else {
+		err = writeReportText(stdout, st, len(f.Stores))
+	}
+	if err != nil {
+		fmt.Fprintf(stderr, "riffle report: %v\n", err)
+		return 1
+	}
+	return 0
+}
+
+func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
+	var f reportFlags
+	fs := flag.NewFlagSet("riffle report", flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	fs.Var((*storeList)(&f.Stores), "store", "store file to read (repeat for the stores of several sidecars)")
+	fs.StringVar(&f.Experiment, "experiment", "", "experiment to report on (default: the only one in the stores)")
+	fs.StringVar(&f.Format, "format", "text", "output format: text or json")
+	fs.DurationVar(&f.Timeout, "timeout", time.Second, "how long to wait for a store file's lock")
+	fs.Float64Var(&f.Params.Alpha, "alpha", 0.05, "two-sided significance level")
+	fs.Float64Var(&f.Params.Power, "power", 0.8, "planned power behind needed")
+	fs.Float64Var(&f.Params.MDE, "mde", 0.02, "minimum detectable Delta behind needed")
+	fs.Float64Var(&f.Params.Margin, "margin", 0, "non-inferiority and equivalence margin on Delta")
+	fs.Usage = func() {
+		fmt.Fprintln(stderr, "usage: riffle report --store a.db [--store b.db ...] [--experiment NAME] [--format text|json]")
+		fs.PrintDefaults()
+	}
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			return f, err
+		}
+		return f, errUsage
+	}
+	switch {
+	case fs.NArg() > 0:
+		return f, fmt.Errorf("unexpected argument %q (give each store with --store)", fs.Arg(0))
+	case len(f.Stores) == 0:
+		return f, errors.New("--store is required, e.g. --store riffle.db")
+	case f.Format == "html":
+		return f, errors.New("--format html: not built yet; use text or json")
+	case f.Format != "text" && f.Format != "json":
+		return f, fmt.Errorf("--format %q: want text or json", f.Format)
+	case f.Timeout <= 0:
+		return f, fmt.Errorf("--timeout %v: want a positive duration", f.Timeout)
+	case !(f.Params.Alpha > 0 && f.Params.Alpha < 1):
+		return f, fmt.Errorf("--alpha %v: want a level in (0, 1)", f.Params.Alpha)
+	case !(f.Params.Power > 0 && f.Params.Power < 1):
+		return f, fmt.Errorf("--power %v: want a probability in (0, 1)", f.Params.Power)
+	case !(f.Params.MDE > 0 && f.Params.MDE < 0.5):
+		return f, fmt.Errorf("--mde %v: want a Delta in (0, 0.5)", f.Params.MDE)
+	case !(f.Params.Margin >= 0 && f.Params.Margin < 0.5):
+		return f, fmt.Errorf("--margin %v: want a Delta in [0, 0.5)", f.Params.Margin)
+	}
+	return f, nil
+}
+
+// mergeStores opens every store read-only, picks the experiment and adds
+// up its aggregates over the stores that hold it.
+func mergeStores(ctx context.Context, paths []string, experiment string, timeout time.Duration) (store.Aggregate, error) {
+	var open []*store.Store
+	defer func() {
+		for _, s := range open {
+			_ = s.Close()
+		}
+	}()
+	held := map[string][]string{} // experiment -> stores holding it
+	for _, p := range paths {
+		if err := ctx.Err(); err != nil {
+			return store.Aggregate{}, err
+		}
+		s, err := store.Open(p, &store.Options{ReadOnly: true, Timeout: timeout})
+		if err != nil {
+			return store.Aggregate{}, openProblem(p, timeout, err)
+		}
+		open = append(open, s)
+		names, err := s.Experiments()
+		if err != nil {
+			return store.Aggregate{}, fmt.Errorf("%s: %w", p, err)
+		}
+		for _, n := range names {
+			held[n] = append(held[n], p)
+		}
+	}
+	name, err := pickExperiment(held, experiment, paths)
+	if err != nil {
+		return store.Aggregate{}, err
+	}
+	var total store.Aggregate
+	first := true
+	for i, s := range open {
+		if !slices.Contains(held[name], paths[i]) {
+			continue
+		}
+		a, err := s.Aggregate(name)
+		if err != nil {
+			return store.Aggregate{}, fmt.Errorf("%s: experiment %q: %w", paths[i], name, err)
+		}
+		if first {
+			total, first = a, false // adopt the first: no copy of its users
+			continue
+		}
+		total.Add(a)
+	}
+	return total, nil
+}
+
+// openProblem says in words why a store file could not be opened, keeping
+// the cause for errors.Is.
+func openProblem(path string, timeout time.Duration, err error) error {
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		return fmt.Errorf("%s: no such store file: %w", path, fs.ErrNotExist)
+	case errors.Is(err, store.ErrLocked):
+		return fmt.Errorf("%s: locked by a running riffle (waited %v); report on a copy taken from its admin listener's GET /api/v1/snapshot: %w",
+			path, timeout, store.ErrLocked)
+	case errors.Is(err, store.ErrNotStore):
+		return fmt.Errorf("%s: not a riffle store: %w", path, store.ErrNotStore)
+	case errors.Is(err, store.ErrSchema):
+		return fmt.Errorf("%s: written by another riffle version: %w", path, store.ErrSchema)
+	}
+	return fmt.Errorf("%s: %w", path, err)
+}
+
+// pickExperiment returns the experiment asked for, or the only one the
+// stores hold.
+func pickExperiment(held map[string][]string, experiment string, paths []string) (string, error) {
+	names := make([]string, 0, len(held))
+	for n := range held {
+		names = append(names, n)
+	}
+	slices.Sort(names)
+	where := strings.Join(paths, ", ")
+	switch {
+	case experiment != "" && len(held[experiment]) > 0:
+		return experiment, nil
+	case experiment != "" && len(names) == 0:
+		return "", fmt.Errorf("experiment %q: the stores (%s) hold no experiment yet", experiment, where)
+	case experiment != "":
+		return "", fmt.Errorf("experiment %q is in none of the stores (%s); they hold %s", experiment, where, strings.Join(names, ", "))
+	case len(names) == 0:
+		return "", fmt.Errorf("the stores (%s) hold no experiment yet", where)
+	case len(names) > 1:
+		return "", fmt.Errorf("the stores hold several experiments (%s): choose one with --experiment", strings.Join(names, ", "))
+	}
+	return names[0], nil
+}
+
+// writeReportText prints the status for people: a short table and the
+// verdict sentence.
+func writeReportText(w io.Writer, s verdict.Status, stores int) error {
+	var b strings.Builder
+	level := fmt.Sprintf("%g%%", 100*(1-s.Alpha))
+	plural := "s"
+	if stores == 1 {
+		plural = ""
+	}
+	fmt.Fprintf(&b, "riffle report: %s (%s), %d store%s\n\n", s.Experiment, orDash(s.Policy), stores, plural)
+	rows := [][2]string{
+		{"impressions", fmt.Sprintf("%s served, %s interleaved", group(s.Impressions), group(s.Interleaved))},
+		{"with feedback", fmt.Sprintf("%s (%s finalised without), %s users, design effect %.2f",
+			group(s.WithFeedback), group(s.NoFeedback), group(s.Users), s.DesignEffect)},
+		{"wins", fmt.Sprintf("challenger %s, incumbent %s, tie %s", group(s.Wins.Challenger), group(s.Wins.Incumbent), group(s.Wins.Tie))},
+		{"Delta", fmt.Sprintf("%+.4f, %s interval [%+.4f, %+.4f] (fixed-sample, clustered by user)", s.Delta, level, s.CI[0], s.CI[1])},
+		{"always-valid", fmt.Sprintf("p = %.3g, Delta in [%+.4f, %+.4f], win share in [%.4f, %.4f] (safe to watch live)",
+			s.PValue, s.CSDelta[0], s.CSDelta[1], s.CS[0], s.CS[1])},
+		{"sign test", fmt.Sprintf("p = %.3g (exact, fixed-sample; %s ties set aside)", s.SignTest.PValue, group(s.SignTest.TiesSetAside))},
+		{"win share", fmt.Sprintf("%.4f, Wilson %s [%.4f, %.4f] (fixed-sample)", s.WinShare, level, s.Wilson[0], s.Wilson[1])},
+	}
+	if s.Margin > 0 {
+		rows = append(rows, [2]string{"margin", fmt.Sprintf("%g, on par or better: %s", s.Margin, yesNo(s.NonInferior))})
+	}
+	eta := "unknown (no recent traffic)"
+	if s.ETA != nil {
+		eta = time.Duration(*s.ETA).String()
+	}
+	rows = append(rows, [2]string{"needed", fmt.Sprintf("%s more impressions with feedback (a fixed-sample test: %s), eta %s",
+		group(s.Needed), group(s.NeededFixed), eta)})
+	for _, r := range rows {
+		fmt.Fprintf(&b, "  %-15s%s\n", r[0], r[1])
+	}
+	fmt.Fprintf(&b, "\nverdict: %s: %s.\n", s.Verdict, s.Reason)
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func orDash(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
+}
+
+func yesNo(b bool) string {
+	if b {
+		return "yes"
+	}
+	return "no"
 }
