@@ -1,0 +1,184 @@
+package sidecar
+
+import (
+	"context"
+	"fmt"
+	"sync"
+	"time"
+
+	"github.com/prometheus/client_golang/prometheus"
+
+	"riffle/merge"
+	"riffle/merge/verdict"
+	"riffle/proxy/config"
+	"riffle/proxy/guard"
+	"riffle/proxy/status"
+	"riffle/store"
+)
+
+// Status is the experiment status of GET /api/v1/experiment: the verdict
+// package's status (DESIGN.md's Interface keys and more) plus the
+// guardrail state.
+type Status struct {
+	verdict.Status
+	Guardrail GuardrailState `json:"guardrail"`
+}
+
+// GuardrailState says whether a guardrail has halted the challenger.
+type GuardrailState struct {
+	Tripped bool `json:"tripped"`
+	guard.Trip
+}
+
+// experiment computes the live status from the store, caches it briefly
+// (a dashboard polling every second must not rescan the per-user
+// aggregates each time), samples it into the status page's history and
+// sets the live Delta gauges.
+type experiment struct {
+	store   *store.Store
+	history *status.History
+	current func() *config.Config
+	ramp    func() float64
+	guard   *guard.Guard
+
+	delta, lower, upper *prometheus.GaugeVec
+
+	mu     sync.Mutex
+	cached Status
+	at     time.Time
+}
+
+func newExperiment(st *store.Store, reg prometheus.Registerer) *experiment {
+	gauge := func(name, help string) *prometheus.GaugeVec {
+		g := prometheus.NewGaugeVec(prometheus.GaugeOpts{Name: name, Help: help}, []string{"experiment"})
+		reg.MustRegister(g)
+		return g
+	}
+	return &experiment{
+		store:   st,
+		history: status.NewHistory(0),
+		delta:   gauge("riffle_experiment_delta", "Preference statistic Delta of the challenger over the incumbent on finalised impressions."),
+		lower:   gauge("riffle_experiment_delta_lower", "Lower end of the interval for Delta at 1 - alpha."),
+		upper:   gauge("riffle_experiment_delta_upper", "Upper end of the interval for Delta at 1 - alpha."),
+	}
+}
+
+// status returns the current status, computed at most once a second.
+func (e *experiment) status() (Status, error) {
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	if time.Since(e.at) < time.Second {
+		return e.cached, nil
+	}
+	cfg := e.current()
+	agg, err := e.store.Aggregate(cfg.Experiment.Name)
+	if err != nil {
+		return Status{}, fmt.Errorf("experiment %s: %w", cfg.Experiment.Name, err)
+	}
+	if agg.Experiment == "" {
+		agg.Experiment = cfg.Experiment.Name
+	}
+	if agg.Policy == "" {
+		agg.Policy = cfg.Experiment.Policy
+	}
+	in := verdict.FromAggregate(agg, paramsOf(cfg))
+	ramp := e.ramp()
+	in.Ramp = &ramp
+	vs, err := verdict.Compute(in)
+	if err != nil {
+		return Status{}, fmt.Errorf("experiment %s: %w", cfg.Experiment.Name, err)
+	}
+	st := Status{Status: vs}
+	st.Guardrail.Tripped, st.Guardrail.Trip = e.guard.Tripped()
+	e.cached, e.at = st, time.Now()
+	return st, nil
+}
+
+// losing is the losing guardrail's check: the always-valid test says the
+// challenger is significantly worse.
+func (e *experiment) losing() (bool, string) {
+	st, err := e.status()
+	if err != nil || st.Verdict != verdict.IncumbentBetter {
+		return false, ""
+	}
+	return true, fmt.Sprintf("incumbent-better: %s (Delta %.4f, always-valid p %.4g)", st.Reason, st.Delta, st.PValue)
+}
+
+// sample records the status every interval until ctx ends.
+func (e *experiment) sample(ctx context.Context, every time.Duration) {
+	t := time.NewTicker(every)
+	defer t.Stop()
+	for {
+		e.record()
+		select {
+		case <-ctx.Done():
+			return
+		case <-t.C:
+		}
+	}
+}
+
+func (e *experiment) record() {
+	st, err := e.status()
+	if err != nil {
+		return
+	}
+	p := status.Point{Time: time.Now(), Delta: st.Delta, Verdict: string(st.Verdict), N: st.WithFeedback}
+	if len(st.CI) == 2 {
+		p.Lo, p.Hi = st.CI[0], st.CI[1]
+	}
+	if st.Ramp != nil {
+		p.Ramp = *st.Ramp
+	}
+	e.history.Add(p)
+	e.delta.WithLabelValues(st.Experiment).Set(p.Delta)
+	e.lower.WithLabelValues(st.Experiment).Set(p.Lo)
+	e.upper.WithLabelValues(st.Experiment).Set(p.Hi)
+}
+
+// rulesOf are the store's attribution rules from a config.
+func rulesOf(cfg *config.Config) store.Rules {
+	opts := merge.Options{Tau: cfg.Experiment.Tau, Credit: cfg.Experiment.Credit}
+	return store.Rules{
+		Window: cfg.Experiment.Window,
+		Events: cfg.Experiment.Events,
+		Eta:    cfg.Experiment.Debias.Eta,
+		Policy: func(name string) (merge.Policy, error) { return merge.New(name, opts) },
+	}
+}
+
+// paramsOf are the statistics' settings from a config.
+func paramsOf(cfg *config.Config) verdict.Params {
+	e := cfg.Experiment
+	return verdict.Params{Alpha: e.Alpha, Power: e.Power, MDE: e.MDE, Margin: e.Margin}
+}
+
+// guardOptions are the guardrails' settings from a config; the base ramp
+// follows the staged schedule from the experiment's start.
+func guardOptions(cfg *config.Config, s *Sidecar) guard.Options {
+	g := cfg.Experiment.Guardrails
+	o := guard.Options{
+		ErrorRate: g.ErrorRate, LatencyP99: g.LatencyP99, Window: g.Window, MinRequests: g.MinRequests,
+		Base: func(now time.Time) float64 {
+			return s.reloader.Current().EffectiveRamp(now, time.Unix(0, s.start.Load()))
+		},
+		Registerer: s.reg, Logger: s.log,
+	}
+	if g.Losing {
+		o.Losing = s.exp.losing
+	}
+	return o
+}
+
+// experimentStart is when the ramp schedule counts from: the config's
+// experiment.start, else the first time the store saw the experiment, else
+// now.
+func experimentStart(st *store.Store, cfg *config.Config, now time.Time) time.Time {
+	if !cfg.Experiment.Start.IsZero() {
+		return cfg.Experiment.Start
+	}
+	if agg, err := st.Aggregate(cfg.Experiment.Name); err == nil && !agg.Start.IsZero() {
+		return agg.Start
+	}
+	return now
+}
