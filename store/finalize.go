@@ -1,0 +1,180 @@
+package store
+
+import (
+	"bytes"
+	"fmt"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"riffle/merge"
+)
+
+// chunk bounds the records one finalise or retention transaction touches,
+// so that no transaction grows without bound and the writer is not held
+// up for long.
+const chunk = 512
+
+// defaultPolicy resolves a stored policy name with the policies' defaults.
+func defaultPolicy(name string) (merge.Policy, error) { return merge.New(name, merge.Options{}) }
+
+// Finalize finalises every impression whose attribution window closed at
+// or before now: it scores the impression's events with its policy's
+// Credit (each event weighted by its type's weight and, with Rules.Eta,
+// the debiasing weight of its 1-based slot), decides the outcome, and in
+// the same transaction updates the experiment's and the user's counts, so
+// a crash or restart can neither lose nor double-count an outcome. It
+// returns how many impressions it finalised. An impression whose policy
+// cannot be resolved stays open and the error is returned.
+func (s *Store) Finalize(now time.Time) (int, error) {
+	if s.opt.ReadOnly {
+		return 0, s.unwritable()
+	}
+	rules := s.rules.Load()
+	policies := make(map[string]merge.Policy)
+	cutoff := now.Add(-rules.Window)
+	if !s.anyDue(cutoff) {
+		return 0, nil // no write transaction, no fsync, when nothing is due
+	}
+	total := 0
+	for {
+		n, more, err := s.finalizeChunk(cutoff, rules, policies)
+		total += n
+		if err != nil || !more {
+			return total, err
+		}
+	}
+}
+
+// finalizeChunk finalises up to chunk impressions served at or before
+// cutoff and reports whether more may be waiting.
+func (s *Store) finalizeChunk(cutoff time.Time, rules *Rules, policies map[string]merge.Policy) (int, bool, error) {
+	var n int
+	var more bool
+	counted := make(map[string]*[4]int64)
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		n, more = 0, false
+		clear(counted)
+		due := dueKeys(tx.Bucket(bucketOpen), cutoff)
+		more = len(due) == chunk
+		for _, k := range due {
+			o, exp, err := s.finalizeOne(tx, k, rules, policies)
+			if err != nil {
+				return err
+			}
+			if exp != "" {
+				if counted[exp] == nil {
+					counted[exp] = new([4]int64)
+				}
+				counted[exp][o]++
+			}
+			n++
+		}
+		tx.OnCommit(func() { s.m.addOutcomes(counted) })
+		return nil
+	})
+	if err != nil {
+		return 0, false, fmt.Errorf("store %s: finalise: %w", s.path, err)
+	}
+	return n, more, nil
+}
+
+// anyDue reports whether some open impression was served at or before
+// cutoff; a read error counts as yes so that Finalize reports it.
+func (s *Store) anyDue(cutoff time.Time) bool {
+	due := true
+	_ = s.db.View(func(tx *bolt.Tx) error {
+		k, _ := tx.Bucket(bucketOpen).Cursor().First()
+		due = k != nil && !time.Unix(0, idNanos(k)).After(cutoff)
+		return nil
+	})
+	return due
+}
+
+// dueKeys returns up to chunk open-index keys whose time is at or before
+// cutoff, oldest first.
+func dueKeys(open *bolt.Bucket, cutoff time.Time) [][]byte {
+	limit := make([]byte, 8)
+	putNanos(limit, cutoff)
+	var due [][]byte
+	c := open.Cursor()
+	for k, _ := c.First(); k != nil && len(due) < chunk; k, _ = c.Next() {
+		if bytes.Compare(k[:8], limit) > 0 {
+			break
+		}
+		due = append(due, bytes.Clone(k))
+	}
+	return due
+}
+
+// finalizeOne finalises the impression behind open-index key k. It returns
+// the outcome and, for an interleaved impression, its experiment.
+func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[string]merge.Policy) (merge.Outcome, string, error) {
+	if len(k) != 8+len(ID{}) {
+		return 0, "", fmt.Errorf("open index key %x: %w", k, ErrCorrupt)
+	}
+	id := k[8:]
+	imp := tx.Bucket(bucketImp)
+	rec, err := decodeRecord(id, imp.Get(id))
+	if err != nil {
+		return 0, "", err
+	}
+	clicks, had, err := clicksOf(tx, &rec, rules)
+	if err != nil {
+		return 0, "", err
+	}
+	exp := ""
+	if rec.Interleaved() {
+		p, err := policyFor(rec.Policy, rules, policies)
+		if err != nil {
+			return 0, "", fmt.Errorf("impression %s: %w", rec.ID, err)
+		}
+		rec.Score = p.Credit(rec.Slots, clicks)
+		rec.Outcome = merge.Decide(rec.Score, had)
+		if err := addOutcome(tx, &rec.Impression, rec.Outcome); err != nil {
+			return 0, "", err
+		}
+		exp = rec.Experiment
+	}
+	rec.Final = true
+	if err := imp.Put(id, encodeRecord(nil, &rec)); err != nil {
+		return 0, "", fmt.Errorf("finalise impression %s: %w", rec.ID, err)
+	}
+	if err := tx.Bucket(bucketOpen).Delete(k); err != nil {
+		return 0, "", fmt.Errorf("finalise impression %s: %w", rec.ID, err)
+	}
+	return rec.Outcome, exp, nil
+}
+
+// clicksOf turns an impression's events into weighted clicks and reports
+// whether it had any event. An event whose type weighs 0 (or was dropped
+// from the rules since it was accepted) is no click, so it cannot move
+// balanced's k, but it still makes the impression one with feedback.
+func clicksOf(tx *bolt.Tx, rec *record, rules *Rules) ([]merge.Click, bool, error) {
+	var clicks []merge.Click
+	had := false
+	err := eachEvent(tx, rec.ID, func(_ []byte, ev Event) error {
+		had = true
+		pos := slotOf(rec.Slots, ev.Item)
+		if pos < 0 {
+			return fmt.Errorf("event on %s names item %q not in the impression: %w", rec.ID, ev.Item, ErrCorrupt)
+		}
+		if w := rules.Events[ev.Type] * merge.DebiasWeight(pos+1, rules.Eta); w > 0 {
+			clicks = append(clicks, merge.Click{Pos: pos, Weight: w})
+		}
+		return nil
+	})
+	return clicks, had, err
+}
+
+func policyFor(name string, rules *Rules, cache map[string]merge.Policy) (merge.Policy, error) {
+	if p, ok := cache[name]; ok {
+		return p, nil
+	}
+	p, err := rules.Policy(name)
+	if err != nil {
+		return nil, fmt.Errorf("resolve policy %q: %w", name, err)
+	}
+	cache[name] = p
+	return p, nil
+}
