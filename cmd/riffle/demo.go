@@ -17,6 +17,7 @@ import (
 	"riffle/cmd/riffle/internal/shop"
 	"riffle/proxy/config"
 	"riffle/proxy/sidecar"
+	"riffle/store"
 )
 
 // demoFlags are riffle demo's settings.
@@ -94,7 +95,60 @@ func demo(ctx context.Context, f demoFlags, stdout, stderr io.Writer) error {
 
 	err = browse(ctx, f, sc, cat, stdout, cfg.Experiment.Window)
 	stopRiffle()
-	return errors.Join(err, <-done)
+	if err := errors.Join(err, <-done); err != nil {
+		return err
+	}
+	if ctx.Err() != nil {
+		return nil
+	}
+	return printTeamClicks(stdout, cfg.Store)
+}
+
+// printTeamClicks reads the closed store back and counts the events on each
+// team's slots of the interleaved impressions.
+func printTeamClicks(w io.Writer, path string) error {
+	st, err := store.Open(path, &store.Options{ReadOnly: true})
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	pr, pw := io.Pipe()
+	go func() { pw.CloseWithError(st.Export(pw, time.Time{})) }()
+	clicks := map[string]map[string]int{}
+	dec := json.NewDecoder(pr)
+	for {
+		var line struct {
+			Fallback string `json:"fallback"`
+			Slots    []struct {
+				Team string `json:"team"`
+			} `json:"slots"`
+			Events []struct {
+				Event string `json:"event"`
+				Slot  int    `json:"slot"`
+			} `json:"events"`
+		}
+		if err := dec.Decode(&line); errors.Is(err, io.EOF) {
+			break
+		} else if err != nil {
+			return fmt.Errorf("read back store: %w", err)
+		}
+		if line.Fallback != "" {
+			continue
+		}
+		for _, ev := range line.Events {
+			if ev.Slot < 1 || ev.Slot > len(line.Slots) {
+				continue
+			}
+			team := line.Slots[ev.Slot-1].Team
+			if clicks[team] == nil {
+				clicks[team] = map[string]int{}
+			}
+			clicks[team][ev.Event]++
+		}
+	}
+	fmt.Fprintf(w, "  events by team     challenger slots: %d clicks, %d purchases; incumbent slots: %d clicks, %d purchases (interleaved impressions, read back from the store)\n",
+		clicks["challenger"]["click"], clicks["challenger"]["purchase"], clicks["incumbent"]["click"], clicks["incumbent"]["purchase"])
+	return nil
 }
 
 // browse runs the shoppers for the demo's duration, printing progress, then

@@ -143,6 +143,7 @@ func (h *handler) record(ctx context.Context, lines []line) (*Response, int) {
 		return resp, http.StatusBadRequest
 	}
 	errs := h.st.AddEvents(ctx, evs)
+	logged := false
 	for j, err := range errs {
 		reason := reasonOf(err)
 		switch reason {
@@ -154,7 +155,15 @@ func (h *handler) record(ctx context.Context, lines []line) (*Response, int) {
 			h.m.rejected(reason, 1)
 		case reasonStore:
 			h.m.rejected(reason, 1)
-			h.log.Error("feedback: store failed; events not recorded", "err", err)
+			switch {
+			case logged:
+			case ctx.Err() != nil:
+				// The client hung up first; it got no 202, so it retries.
+				h.log.Info("feedback: client went away before its events were acknowledged", "err", err)
+			default:
+				h.log.Error("feedback: store failed; events not recorded", "err", err)
+			}
+			logged = true
 			resp.Error = "events could not be stored; retry: " + err.Error()
 			resp.Rejected = append(resp.Rejected, Rejection{Line: lines[at[j]].n, Error: err.Error()})
 		default:

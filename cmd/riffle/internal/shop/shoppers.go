@@ -135,6 +135,9 @@ func (cr Crowd) visit(ctx context.Context, c *Catalogue, s shopper, r *rand.Rand
 	resp.Body.Close()
 	imp := resp.Header.Get("Riffle-Impression")
 	if err != nil || resp.StatusCode != http.StatusOK {
+		if ctx.Err() != nil {
+			return // the run ended mid-answer
+		}
 		t.Errors.Add(1)
 		return
 	}
