@@ -61,9 +61,12 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		fmt.Fprintf(stderr, "riffle report: experiment %q: %v\n", agg.Experiment, err)
 		return 1
 	}
-	if f.Format == "json" {
+	switch f.Format {
+	case "json":
 		err = writeJSON(stdout, st)
-	} else {
+	case "html":
+		err = writeReportHTML(stdout, st, agg, len(f.Stores))
+	default:
 		err = writeReportText(stdout, st, len(f.Stores))
 	}
 	if err != nil {
@@ -79,14 +82,14 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 	fs.SetOutput(stderr)
 	fs.Var((*storeList)(&f.Stores), "store", "store file to read (repeat for the stores of several sidecars)")
 	fs.StringVar(&f.Experiment, "experiment", "", "experiment to report on (default: the only one in the stores)")
-	fs.StringVar(&f.Format, "format", "text", "output format: text or json")
+	fs.StringVar(&f.Format, "format", "text", "output format: text, json or html")
 	fs.DurationVar(&f.Timeout, "timeout", time.Second, "how long to wait for a store file's lock")
 	fs.Float64Var(&f.Params.Alpha, "alpha", 0.05, "two-sided significance level")
 	fs.Float64Var(&f.Params.Power, "power", 0.8, "planned power behind needed")
 	fs.Float64Var(&f.Params.MDE, "mde", 0.02, "minimum detectable Delta behind needed")
 	fs.Float64Var(&f.Params.Margin, "margin", 0, "non-inferiority and equivalence margin on Delta")
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: riffle report --store a.db [--store b.db ...] [--experiment NAME] [--format text|json]")
+		fmt.Fprintln(stderr, "usage: riffle report --store a.db [--store b.db ...] [--experiment NAME] [--format text|json|html]")
 		fs.PrintDefaults()
 	}
 	if err := fs.Parse(args); err != nil {
@@ -100,10 +103,8 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 		return f, fmt.Errorf("unexpected argument %q (give each store with --store)", fs.Arg(0))
 	case len(f.Stores) == 0:
 		return f, errors.New("--store is required, e.g. --store riffle.db")
-	case f.Format == "html":
-		return f, errors.New("--format html: not built yet; use text or json")
-	case f.Format != "text" && f.Format != "json":
-		return f, fmt.Errorf("--format %q: want text or json", f.Format)
+	case f.Format != "text" && f.Format != "json" && f.Format != "html":
+		return f, fmt.Errorf("--format %q: want text, json or html", f.Format)
 	case f.Timeout <= 0:
 		return f, fmt.Errorf("--timeout %v: want a positive duration", f.Timeout)
 	case !(f.Params.Alpha > 0 && f.Params.Alpha < 1):

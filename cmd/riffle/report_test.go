@@ -203,6 +203,9 @@ func TestReportGolden(t *testing.T) {
 		{"report_challenger.json", func(r *rand.Rand) []planned {
 			return plannedTraffic(r, "spring-refresh", 3000, 2000, time.Second, trafficMix{0.30, 0.15, 0.05, 0.1})
 		}, []string{"--format", "json"}},
+		{"report_challenger.html", func(r *rand.Rand) []planned {
+			return plannedTraffic(r, "spring-refresh", 3000, 2000, time.Second, trafficMix{0.30, 0.15, 0.05, 0.1})
+		}, []string{"--format", "html", "--margin", "0.02"}},
 	}
 	for i, c := range cases {
 		t.Run(c.golden, func(t *testing.T) {
@@ -283,7 +286,6 @@ func TestReportBadFlags(t *testing.T) {
 	}{
 		{nil, "--store is required"},
 		{[]string{"--store", "a.db", "--format", "xml"}, `--format "xml"`},
-		{[]string{"--store", "a.db", "--format", "html"}, "--format html: not built yet"},
 		{[]string{"--store", "a.db", "--alpha", "0"}, "--alpha 0"},
 		{[]string{"--store", "a.db", "--margin", "-0.1"}, "--margin -0.1"},
 		{[]string{"--store", "a.db", "--mde", "0.7"}, "--mde 0.7"},
