@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strings"
 	"time"
 
 	"github.com/fsnotify/fsnotify"
@@ -20,7 +21,12 @@ import (
 // symbolic link through a "..data" link that is swapped atomically. After
 // each burst of events (see ReloaderOptions.Debounce) it resolves the links
 // again, watches the directories they now lead through, and reloads only
-// when the bytes differ from those Reload last read. A missing file is
+// when the bytes differ from those Reload last read. Only events on the
+// config file, the links on the way to it, or a directory on that way
+// count: other files in the same directories (the store, say, which is
+// written on every commit) would otherwise keep the debounce from ever
+// ending under steady traffic. A file changed between the initial load and
+// the start of the watch is reloaded when the watch starts. A missing file is
 // waited for, not counted as a failure. It returns an error only when the
 // watch cannot be set up or the watcher breaks.
 func (r *Reloader) Watch(ctx context.Context) error {
@@ -33,6 +39,7 @@ func (r *Reloader) Watch(ctx context.Context) error {
 	if err := r.rewatch(w, watched); err != nil {
 		return err
 	}
+	paths := chain(r.path) // what events must concern; renewed with the watch
 	r.noteInitial()
 
 	debounce := time.NewTimer(r.debounce)
@@ -52,7 +59,7 @@ func (r *Reloader) Watch(ctx context.Context) error {
 			if !ok {
 				return fmt.Errorf("config: watch %s: watcher closed", r.path)
 			}
-			if ev.Op != fsnotify.Chmod {
+			if ev.Op != fsnotify.Chmod && concerns(paths, ev.Name) {
 				debounce.Reset(r.debounce)
 			}
 		case err, ok := <-w.Errors:
@@ -64,6 +71,7 @@ func (r *Reloader) Watch(ctx context.Context) error {
 			if err := r.rewatch(w, watched); err != nil {
 				r.log.Warn("config watch", "file", r.path, "error", err)
 			}
+			paths = chain(r.path)
 			r.reloadIfChanged()
 		case <-poll:
 			r.reloadIfChanged()
@@ -89,7 +97,9 @@ func (r *Reloader) ReloadOnSignal(ctx context.Context, ch <-chan os.Signal) {
 }
 
 // noteInitial takes the file's current bytes as the ones the initial config
-// came from, when no Reload has read the file yet.
+// came from, when no Reload has read the file yet and they still parse to
+// that config. When they do not, the file changed between the initial load
+// and the start of the watch, and no event will tell of it: it reloads.
 func (r *Reloader) noteInitial() {
 	data, err := os.ReadFile(r.path)
 	if err != nil {
@@ -97,10 +107,18 @@ func (r *Reloader) noteInitial() {
 	}
 	sum := sha256.Sum256(data)
 	r.mu.Lock()
-	defer r.mu.Unlock()
-	if r.seen == nil && r.cur.Load() != nil {
-		r.seen = &sum
+	cur := r.cur.Load()
+	if r.seen != nil || cur == nil {
+		r.mu.Unlock()
+		return
 	}
+	if c, err := Parse(data, r.path); err == nil && c.Hash() == cur.Hash() {
+		r.seen = &sum
+		r.mu.Unlock()
+		return
+	}
+	r.mu.Unlock()
+	_ = r.Reload()
 }
 
 func (r *Reloader) reloadIfChanged() {
@@ -150,14 +168,26 @@ func (r *Reloader) rewatch(w *fsnotify.Watcher, watched map[string]bool) error {
 // watchDirs returns the directory holding path and the directory of every
 // symbolic link target on the way to the file itself.
 func watchDirs(path string) []string {
+	var dirs []string
+	for _, p := range chain(path) {
+		if d := filepath.Dir(p); !slices.Contains(dirs, d) {
+			dirs = append(dirs, d)
+		}
+	}
+	return dirs
+}
+
+// chain returns the absolute path, every symbolic link target on the way
+// to the file itself, and the file's real path.
+func chain(path string) []string {
 	abs, err := filepath.Abs(path)
 	if err != nil {
 		abs = path
 	}
-	dirs := []string{filepath.Dir(abs)}
-	add := func(d string) {
-		if d = filepath.Clean(d); !slices.Contains(dirs, d) {
-			dirs = append(dirs, d)
+	paths := []string{filepath.Clean(abs)}
+	add := func(p string) {
+		if p = filepath.Clean(p); !slices.Contains(paths, p) {
+			paths = append(paths, p)
 		}
 	}
 	p := abs
@@ -173,11 +203,25 @@ func watchDirs(path string) []string {
 		if !filepath.IsAbs(t) {
 			t = filepath.Join(filepath.Dir(p), t)
 		}
-		add(filepath.Dir(t))
+		add(t)
 		p = t
 	}
 	if real, err := filepath.EvalSymlinks(abs); err == nil {
-		add(filepath.Dir(real))
+		add(real)
 	}
-	return dirs
+	return paths
+}
+
+// concerns reports whether an event on name can change what the config
+// path reads, given the path's chain (see chain): name is on the chain, or
+// is a directory on the way to a path on it (a ConfigMap's "..data" link
+// swapped by a rename, a directory removed).
+func concerns(paths []string, name string) bool {
+	name = filepath.Clean(name)
+	for _, p := range paths {
+		if p == name || strings.HasPrefix(p, name+string(filepath.Separator)) {
+			return true
+		}
+	}
+	return false
 }
