@@ -41,26 +41,49 @@ type experiment struct {
 	ramp    func() float64
 	guard   *guard.Guard
 
-	delta, lower, upper *prometheus.GaugeVec
-
 	mu     sync.Mutex
 	cached Status
 	at     time.Time
 }
 
 func newExperiment(st *store.Store, reg prometheus.Registerer) *experiment {
-	gauge := func(name, help string) *prometheus.GaugeVec {
-		g := prometheus.NewGaugeVec(prometheus.GaugeOpts{Name: name, Help: help}, []string{"experiment"})
-		reg.MustRegister(g)
-		return g
+	e := &experiment{store: st, history: status.NewHistory(0)}
+	reg.MustRegister(deltaCollector{e: e,
+		delta: prometheus.NewDesc("riffle_experiment_delta", "Preference statistic Delta of the challenger over the incumbent on finalised impressions.", []string{"experiment"}, nil),
+		lower: prometheus.NewDesc("riffle_experiment_delta_lower", "Lower end of the interval for Delta at 1 - alpha.", []string{"experiment"}, nil),
+		upper: prometheus.NewDesc("riffle_experiment_delta_upper", "Upper end of the interval for Delta at 1 - alpha.", []string{"experiment"}, nil),
+	})
+	return e
+}
+
+// deltaCollector exports the live Delta and its interval when scraped,
+// from the status cached for at most a second, so the gauges never lag
+// the API.
+type deltaCollector struct {
+	e                   *experiment
+	delta, lower, upper *prometheus.Desc
+}
+
+// Describe implements prometheus.Collector.
+func (c deltaCollector) Describe(ch chan<- *prometheus.Desc) {
+	ch <- c.delta
+	ch <- c.lower
+	ch <- c.upper
+}
+
+// Collect implements prometheus.Collector; it exports nothing while the
+// status cannot be computed.
+func (c deltaCollector) Collect(ch chan<- prometheus.Metric) {
+	if c.e.current == nil {
+		return
 	}
-	return &experiment{
-		store:   st,
-		history: status.NewHistory(0),
-		delta:   gauge("riffle_experiment_delta", "Preference statistic Delta of the challenger over the incumbent on finalised impressions."),
-		lower:   gauge("riffle_experiment_delta_lower", "Lower end of the interval for Delta at 1 - alpha."),
-		upper:   gauge("riffle_experiment_delta_upper", "Upper end of the interval for Delta at 1 - alpha."),
+	st, err := c.e.status()
+	if err != nil {
+		return
 	}
+	ch <- prometheus.MustNewConstMetric(c.delta, prometheus.GaugeValue, st.Delta, st.Experiment)
+	ch <- prometheus.MustNewConstMetric(c.lower, prometheus.GaugeValue, st.CI[0], st.Experiment)
+	ch <- prometheus.MustNewConstMetric(c.upper, prometheus.GaugeValue, st.CI[1], st.Experiment)
 }
 
 // status returns the current status, computed at most once a second.
@@ -131,9 +154,6 @@ func (e *experiment) record() {
 		p.Ramp = *st.Ramp
 	}
 	e.history.Add(p)
-	e.delta.WithLabelValues(st.Experiment).Set(p.Delta)
-	e.lower.WithLabelValues(st.Experiment).Set(p.Lo)
-	e.upper.WithLabelValues(st.Experiment).Set(p.Hi)
 }
 
 // rulesOf are the store's attribution rules from a config.
