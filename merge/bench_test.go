@@ -25,7 +25,7 @@ func benchLists(n int) (a, b []string) {
 }
 
 func benchPolicy(b *testing.B, p Policy) {
-	for _, n := range []int{10, 100} {
+	for _, n := range []int{10, 20, 100} { // 20: the bench's page size
 		b.Run(fmt.Sprintf("2x%d", n), func(b *testing.B) {
 			la, lb := benchLists(n)
 			dst := make([]Slot, 0, n)

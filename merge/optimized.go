@@ -34,6 +34,19 @@ const (
 // difference: positive credit goes to the challenger, negative to the
 // incumbent.
 //
+// When one list runs out within the program's depth, no distribution need
+// have zero expected credit at every cutoff (the shorter list's few items
+// cannot earn back the credit the other's take); the program then takes
+// the distribution of least total absolute expected credit over the
+// cutoffs.
+//
+// Zero expected credit is a property of the credit's size, not its sign:
+// Decide, and so a verdict that counts wins and losses, can still lean to
+// one side under random clicks. For A = (d1..d10) and B = (d2..d10, d1)
+// one random click favours B nine times in ten, since every item but d1
+// ranks higher in B, while the expected credit (-9/10 + 9 x 1/10) is zero.
+// merge/simulate measures both.
+//
 // The program depends only on the overlap structure of the two lists' tops
 // (for each of the incumbent's top items, its rank among the challenger's),
 // so its solutions are cached by that structure in a bounded cache. An
@@ -83,7 +96,8 @@ func (*Optimized) Name() string { return "optimized" }
 func (o *Optimized) Interleave(dst []Slot, a, b []string, n int, seed uint64) []Slot {
 	n = max(0, min(n, len(a)+len(b)))
 	dst = resultSlice(dst, n)
-	x := newWorkspace(a, b)
+	var ws workspace
+	x := ws.ranks(a, b)
 	xa, xb := x[:len(a)], x[len(a):]
 	st := newOptStructure(xa, xb, min(n, OptimizedDepth))
 	if st.depth == 0 {

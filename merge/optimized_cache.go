@@ -56,8 +56,8 @@ func (c *optCache) put(k optKey, sol *optSolution) {
 	c.byKey[k] = c.order.PushFront(&optEntry{key: k, sol: sol})
 }
 
-// len returns how many solutions the cache holds.
-func (c *optCache) len() int {
+// count returns how many solutions the cache holds.
+func (c *optCache) count() int {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	return c.order.Len()

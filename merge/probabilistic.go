@@ -99,7 +99,8 @@ func (p Probabilistic) Interleave(dst []Slot, a, b []string, n int, seed uint64)
 	}
 	n = max(0, min(n, len(a)+len(b)))
 	dst = resultSlice(dst, n)
-	x := newWorkspace(a, b)
+	var ws workspace
+	x := ws.ranks(a, b)
 	xa, xb := x[:len(a)], x[len(a):]
 	var wbuf [stackItems]float64
 	w := wbuf[:0]
@@ -107,47 +108,84 @@ func (p Probabilistic) Interleave(dst []Slot, a, b []string, n int, seed uint64)
 		w = append(w, piWeight(r, tau))
 	}
 	c := newCoins(seed)
+	la, lb := newPIList(xa, w), newPIList(xb, w)
 	for len(dst) < n {
-		sumA, sumB := piRemaining(xa, w), piRemaining(xb, w)
-		if sumA == 0 && sumB == 0 {
+		hasA, hasB := la.next(), lb.next()
+		if !hasA && !hasB {
 			break
 		}
-		fromA := sumB == 0 || sumA > 0 && c.flip()
+		sumA, sumB := la.sum, lb.sum
 		var s Slot
-		if fromA {
-			s = place(a, xa, xb, piDraw(xa, w, sumA, &c), Incumbent)
+		if hasA && (!hasB || c.flip()) {
+			s = place(a, xa, xb, la.draw(w, &c), Incumbent)
 		} else {
-			s = placeB(b, xa, xb, piDraw(xb, w, sumB, &c))
+			s = placeB(b, xa, xb, lb.draw(w, &c))
 		}
 		if s.RankA > 0 {
 			s.PA = float32(w[s.RankA-1] / sumA)
+			la.remove(s.RankA, w)
 		}
 		if s.RankB > 0 {
 			s.PB = float32(w[s.RankB-1] / sumB)
+			lb.remove(s.RankB, w)
 		}
 		dst = append(dst, s)
 	}
 	return dst
 }
 
-// piRemaining is the total weight of a list's items not yet placed.
-func piRemaining(x []int32, w []float64) float64 {
-	sum := 0.0
-	for i, v := range x {
-		if v != taken {
-			sum += w[i]
-		}
-	}
-	return sum
+// piList is one list's distribution during an interleaving: its cross-rank
+// entries (placed items are taken) and the total weight of the rest.
+type piList struct {
+	x     []int32
+	first int     // no unplaced item comes before it
+	sum   float64 // weight of the unplaced items
+	exact float64 // sum when last added up afresh
 }
 
-// piDraw returns the index of an unplaced item, drawn with probability
-// w[i]/sum; sum must be piRemaining(x, w) and positive.
-func piDraw(x []int32, w []float64, sum float64, c *coins) int {
-	u := float64(c.src.Uint64()>>11) * 0x1p-53 * sum
-	last := -1
-	for i, v := range x {
-		if v == taken {
+// newPIList returns the distribution of a list with cross ranks x.
+func newPIList(x []int32, w []float64) piList {
+	l := piList{x: x}
+	l.resum(w)
+	return l
+}
+
+// resum adds the unplaced weight up afresh.
+func (l *piList) resum(w []float64) {
+	l.sum = 0
+	for i := l.first; i < len(l.x); i++ {
+		if l.x[i] != taken {
+			l.sum += w[i]
+		}
+	}
+	l.exact = l.sum
+}
+
+// next skips placed items and reports whether any item is left.
+func (l *piList) next() bool {
+	for l.first < len(l.x) && l.x[l.first] == taken {
+		l.first++
+	}
+	return l.first < len(l.x)
+}
+
+// remove takes the item at 1-based rank r out of the distribution (its
+// entry is already taken). The running sum is added up afresh once it has
+// shrunk a thousandfold, so rounding never builds up.
+func (l *piList) remove(r int32, w []float64) {
+	l.sum -= w[r-1]
+	if l.sum < l.exact/1024 {
+		l.resum(w)
+	}
+}
+
+// draw returns the index of an unplaced item, drawn with probability
+// w[i]/sum; next must have reported an item left.
+func (l *piList) draw(w []float64, c *coins) int {
+	u := float64(c.src.Uint64()>>11) * 0x1p-53 * l.sum
+	last := l.first
+	for i := l.first; i < len(l.x); i++ {
+		if l.x[i] == taken {
 			continue
 		}
 		last = i
@@ -182,6 +220,13 @@ func piDraw(x []int32, w []float64, sum float64, c *coins) int {
 // takes the signed sum as normal. A slot without probabilities (PA = PB =
 // 0) counts for its Team; Fixed slots and clicks outside the list earn
 // nothing.
+//
+// E[o] has expectation zero under random clicks, but its sign need not
+// split evenly: counting wins and losses by Decide can lean to one side on
+// some pairs (for A = (a,b,c) and B = (b,c,a) a click on the first slot
+// favours the challenger 55% of the time). Crediting each click to the
+// slot's logged Team instead would split evenly, at the cost of the
+// marginalisation; merge/simulate measures both effects.
 func (Probabilistic) Credit(slots []Slot, clicks []Click) Score {
 	var wbuf [64]float64
 	w := wbuf[:]

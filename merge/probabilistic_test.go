@@ -338,13 +338,13 @@ func TestProbabilisticLists(t *testing.T) {
 		a, b := c[0], c[1]
 		for _, n := range []int{0, 1, 5, 40} {
 			got := Probabilistic{Tau: 2.5}.Interleave(nil, a, b, n, uint64(n)*31+7)
-			piCheckList(t, got, a, b, n)
+			piCheckList(t, got, a, b, n, true)
 		}
 	}
 }
 
 // piCheckList checks a merged list's shape and provenance.
-func piCheckList(t *testing.T, got []Slot, a, b []string, n int) {
+func piCheckList(t *testing.T, got []Slot, a, b []string, n int, logsP bool) {
 	t.Helper()
 	distinct := map[string]bool{}
 	for _, s := range append(append([]string(nil), a...), b...) {
@@ -359,10 +359,10 @@ func piCheckList(t *testing.T, got []Slot, a, b []string, n int) {
 			t.Fatalf("slot %d: %q shown twice", i, s.Item)
 		}
 		seen[s.Item] = true
-		if ra := piFirst(a, s.Item); s.RankA != ra || (ra == 0) != (s.PA == 0) {
+		if ra := piFirst(a, s.Item); s.RankA != ra || logsP && (ra == 0) != (s.PA == 0) {
 			t.Fatalf("slot %d %q: RankA %d PA %v, want rank %d", i, s.Item, s.RankA, s.PA, ra)
 		}
-		if rb := piFirst(b, s.Item); s.RankB != rb || (rb == 0) != (s.PB == 0) {
+		if rb := piFirst(b, s.Item); s.RankB != rb || logsP && (rb == 0) != (s.PB == 0) {
 			t.Fatalf("slot %d %q: RankB %d PB %v, want rank %d", i, s.Item, s.RankB, s.PB, rb)
 		}
 	}
@@ -404,4 +404,26 @@ func piItems(first, n int) []string {
 		out[i] = fmt.Sprintf("bulb-%03d", first+i)
 	}
 	return out
+}
+
+// TestNewRegistersPIAndOI checks that the registry builds both policies
+// with their options, and refuses bad ones.
+func TestNewRegistersPIAndOI(t *testing.T) {
+	p, err := New("probabilistic", Options{Tau: 2})
+	if err != nil || p.(Probabilistic).Tau != 2 {
+		t.Errorf("probabilistic tau 2: %#v, %v", p, err)
+	}
+	o, err := New("optimized", Options{Credit: CreditInverseRank})
+	if err != nil || !o.(*Optimized).inverse {
+		t.Errorf("optimized inverse-rank: %#v, %v", o, err)
+	}
+	for _, bad := range []Options{{Tau: -2}, {Credit: "log"}} {
+		name := "probabilistic"
+		if bad.Credit != "" {
+			name = "optimized"
+		}
+		if _, err := New(name, bad); !errors.Is(err, ErrBadOption) {
+			t.Errorf("%s %+v: err %v, want ErrBadOption", name, bad, err)
+		}
+	}
 }

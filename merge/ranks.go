@@ -7,10 +7,12 @@ import "math/rand/v2"
 const taken = -1
 
 // smallItems is the largest len(a)+len(b) whose cross-rank working array
-// lives on the stack; stackItems bounds other per-rank scratch arrays kept
-// on the stack.
+// lives on the stack (768 bytes with its table): two lists of 20, the
+// common page of a recommendation route, fit, so the served path does not
+// allocate it; stackItems bounds other per-rank scratch arrays kept on the
+// stack.
 const (
-	smallItems = 32
+	smallItems = 64
 	stackItems = 256
 )
 

@@ -29,6 +29,8 @@ func constructors() []constructor {
 	return []constructor{
 		{"balanced", func(Options) (Policy, error) { return Balanced{}, nil }},
 		{"team-draft", func(Options) (Policy, error) { return TeamDraft{}, nil }},
+		{"probabilistic", func(o Options) (Policy, error) { return NewProbabilistic(o.Tau) }},
+		{"optimized", func(o Options) (Policy, error) { return NewOptimized(o.Credit, 0) }},
 	}
 }
 
