@@ -124,6 +124,7 @@ type conf struct {
 	Listen                string        // 0 = 127.0.0.1:0
 	List                  string        // routes[0].list; "" = /items
 	Guardrails            string        // the experiment.guardrails flow mapping, if any
+	TokenFile             string        // admin_token_file, if any
 }
 
 // yaml renders c as riffle.yaml.
@@ -145,6 +146,9 @@ func (c conf) yaml() string {
 	fmt.Fprintf(&b, "listen: %s\nadmin: 127.0.0.1:0\nstore: %s\n", listen, c.Store)
 	if c.Grace > 0 {
 		fmt.Fprintf(&b, "shutdown_grace: %s\n", c.Grace)
+	}
+	if c.TokenFile != "" {
+		fmt.Fprintf(&b, "admin_token_file: %s\n", c.TokenFile)
 	}
 	fmt.Fprintf(&b, "incumbent: {url: %q, timeout: %s}\n", c.Incumbent, timeout)
 	fmt.Fprintf(&b, "challenger: {url: %q, timeout: %s}\n", c.Challenger, timeout)

@@ -226,23 +226,20 @@ func (s *Sidecar) shutdown(stopLoops context.CancelFunc, wg *sync.WaitGroup) err
 
 // adminHandler builds the admin listener's routes.
 func (s *Sidecar) adminHandler(cfg *config.Config) http.Handler {
-	token, err := cfg.AdminToken()
-	if err != nil {
-		s.log.Warn("admin token unreadable; mutating admin endpoints refuse every request", "err", err)
-		token = "\x00unreadable"
-	}
 	return admin.New(admin.Options{
-		Metrics:    s.reg,
-		Token:      token,
-		Pprof:      cfg.Pprof,
-		Ready:      s.ready,
-		Experiment: func(ctx context.Context) (any, error) { return s.exp.status() },
-		Config:     s.configStatus,
-		Reloader:   s.reloader,
-		Guardrails: s.guard,
-		Snapshot:   s.store,
-		Status:     http.StripPrefix("/status", status.Handler(s.exp.history)),
-		Logger:     s.log,
+		Metrics: s.reg,
+		// The token file is re-read on every protected request, so a
+		// rotated token or a reload that sets admin_token_file applies at once.
+		TokenSource: func() (string, error) { return s.reloader.Current().AdminToken() },
+		Pprof:       cfg.Pprof,
+		Ready:       s.ready,
+		Experiment:  func(ctx context.Context) (any, error) { return s.exp.status() },
+		Config:      s.configStatus,
+		Reloader:    s.reloader,
+		Guardrails:  s.guard,
+		Snapshot:    s.store,
+		Status:      http.StripPrefix("/status", status.Handler(s.exp.history)),
+		Logger:      s.log,
 	})
 }
 
