@@ -103,35 +103,52 @@ func addForwarded(dst http.Header, in *http.Request) {
 // forwardedElement renders one forwarded-element of RFC 7239 section 4.
 // An unknown client is "unknown" (section 6.3); an IPv6 address is
 // bracketed and quoted (section 6); a value that is not a token is quoted.
+// It runs on every request, so it sizes its one allocation up front.
 func forwardedElement(ip, host, proto string) string {
 	node := "unknown"
+	bracket := false
 	if ip != "" {
 		node = ip
-		if strings.Contains(ip, ":") {
-			node = `"[` + ip + `]"`
-		}
+		bracket = strings.IndexByte(ip, ':') >= 0
 	}
 	var b strings.Builder
+	b.Grow(len(`for="[]";host="";proto=`) + len(node) + 2*len(host) + len(proto))
 	b.WriteString("for=")
-	b.WriteString(node)
+	if bracket {
+		b.WriteString(`"[`)
+		b.WriteString(node)
+		b.WriteString(`]"`)
+	} else {
+		b.WriteString(node)
+	}
 	if host != "" {
 		b.WriteString(";host=")
-		b.WriteString(tokenOrQuoted(host))
+		writeTokenOrQuoted(&b, host)
 	}
 	b.WriteString(";proto=")
 	b.WriteString(proto)
 	return b.String()
 }
 
-// tokenOrQuoted returns s as an RFC 9110 token if it is one, else as a
+// writeTokenOrQuoted writes s as an RFC 9110 token if it is one, else as a
 // quoted-string (section 5.6.4) with '"' and '\' escaped.
-func tokenOrQuoted(s string) string {
-	for i := 0; i < len(s); i++ {
-		if !isTokenChar(s[i]) {
-			return `"` + strings.NewReplacer(`\`, `\\`, `"`, `\"`).Replace(s) + `"`
-		}
+func writeTokenOrQuoted(b *strings.Builder, s string) {
+	i := 0
+	for i < len(s) && isTokenChar(s[i]) {
+		i++
 	}
-	return s
+	if i == len(s) {
+		b.WriteString(s)
+		return
+	}
+	b.WriteByte('"')
+	for j := 0; j < len(s); j++ {
+		if c := s[j]; c == '"' || c == '\\' {
+			b.WriteByte('\\')
+		}
+		b.WriteByte(s[j])
+	}
+	b.WriteByte('"')
 }
 
 // isTokenChar reports whether c is a tchar of RFC 9110 section 5.6.2.

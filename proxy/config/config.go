@@ -101,7 +101,7 @@ type Queue struct {
 	Size int `yaml:"size"`
 	// Batch is the most records per commit, at most Size. Default 1024.
 	Batch int `yaml:"batch"`
-	// Interval is the longest a record waits before a commit. Default 5ms.
+	// Interval is the longest a record waits before a commit. Default 50ms.
 	Interval time.Duration `yaml:"interval"`
 }
 

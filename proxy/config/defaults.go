@@ -9,7 +9,7 @@ const (
 	DefaultStore              = "riffle.db"
 	DefaultQueueSize          = 65536
 	DefaultQueueBatch         = 1024
-	DefaultQueueInterval      = 5 * time.Millisecond
+	DefaultQueueInterval      = 50 * time.Millisecond
 	DefaultMaxBodyBytes       = 1 << 20
 	DefaultOnIncumbentFailure = "fail"
 	DefaultShutdownGrace      = 10 * time.Second

@@ -30,7 +30,7 @@ incumbent:
 `,
 		"defaults written out": string(minimal(t)) + `listen: 127.0.0.1:8080
 store: riffle.db
-queue: {size: 65536, batch: 1024, interval: 5ms}
+queue: {size: 65536, batch: 1024, interval: 50ms}
 `,
 		"durations spelt differently": strings.Replace(string(minimal(t)), `{url: "http://127.0.0.1:7001"}`, `{url: "http://127.0.0.1:7001", timeout: 0.2s}`, 1),
 		"explicit ramp 1":             strings.Replace(string(minimal(t)), "{name: spring-refresh}", "{name: spring-refresh, ramp: 1.0}", 1),

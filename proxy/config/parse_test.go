@@ -26,7 +26,7 @@ func TestParseDefaults(t *testing.T) {
 		{"store", c.Store, "riffle.db"},
 		{"queue.size", c.Queue.Size, 65536},
 		{"queue.batch", c.Queue.Batch, 1024},
-		{"queue.interval", c.Queue.Interval, 5 * time.Millisecond},
+		{"queue.interval", c.Queue.Interval, 50 * time.Millisecond},
 		{"max_body_bytes", c.MaxBodyBytes, int64(1 << 20)},
 		{"on_incumbent_failure", c.OnIncumbentFailure, "fail"},
 		{"shutdown_grace", c.ShutdownGrace, 10 * time.Second},

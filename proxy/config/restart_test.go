@@ -23,7 +23,7 @@ func TestRestartOnly(t *testing.T) {
 		{"queue", func(c *Config) { c.Queue = Queue{Size: 100, Batch: 10, Interval: time.Second} }, []Problem{
 			{Path: "queue.size", Message: "changed from 65536 to 100; this needs a restart"},
 			{Path: "queue.batch", Message: "changed from 1024 to 10; this needs a restart"},
-			{Path: "queue.interval", Message: "changed from 5ms to 1s; this needs a restart"},
+			{Path: "queue.interval", Message: "changed from 50ms to 1s; this needs a restart"},
 		}},
 		{"pprof", func(c *Config) { c.Pprof = true },
 			[]Problem{{Path: "pprof", Message: "changed from false to true; this needs a restart"}}},

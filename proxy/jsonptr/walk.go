@@ -134,7 +134,7 @@ func (w *walker) object(i, d, depth int) (int, error) {
 			if i = skipWS(w.doc, kend); i >= len(w.doc) || w.doc[i] != ':' {
 				return i, invalid(i, "want ':' after a member name")
 			}
-			if i, err = w.value(skipWS(w.doc, i+1), child, depth); err != nil {
+			if i, err = w.member(skipWS(w.doc, i+1), child, depth); err != nil {
 				return i, err
 			}
 			if i, done, err = w.next(i, '}'); err != nil {
@@ -146,6 +146,22 @@ func (w *walker) object(i, d, depth int) (int, error) {
 		w.setMiss(d, "the object has no such member")
 	}
 	return i, nil
+}
+
+// member scans a member's value at i. Off both paths a string or a number
+// (most members of a list element) is skipped directly, without value's
+// bookkeeping: nothing there can be a target.
+func (w *walker) member(i, d, depth int) (int, error) {
+	if d < 0 && i < len(w.doc) {
+		switch c := w.doc[i]; {
+		case c == '"':
+			end, _, err := skipString(w.doc, i)
+			return end, err
+		case c == '-' || (c >= '0' && c <= '9'):
+			return skipNumber(w.doc, i)
+		}
+	}
+	return w.value(i, d, depth)
 }
 
 // duplicate handles a second member matching the token at d: RFC 6901
