@@ -53,7 +53,7 @@ type exportScore struct {
 // "open" while its window is open). It reads one consistent snapshot.
 func (s *Store) Export(w io.Writer, since time.Time) error {
 	bw := bufio.NewWriter(w)
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		c := tx.Bucket(bucketImp).Cursor()
 		k, v := c.First()
 		if !since.IsZero() {

@@ -2,6 +2,7 @@ package store
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"time"
 
@@ -51,14 +52,24 @@ func (s *Store) Finalize(now time.Time) (int, error) {
 func (s *Store) finalizeChunk(cutoff time.Time, rules *Rules, policies map[string]merge.Policy) (int, bool, error) {
 	var n int
 	var more bool
+	var parked []error
 	counted := make(map[string]*[4]int64)
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		n, more = 0, false
 		clear(counted)
 		due := dueKeys(tx.Bucket(bucketOpen), cutoff)
 		more = len(due) == chunk
+		parked = parked[:0]
 		for _, k := range due {
 			o, exp, err := s.finalizeOne(tx, k, rules, policies)
+			var pe *parkError
+			if errors.As(err, &pe) {
+				if err := park(tx, k, pe); err != nil {
+					return err
+				}
+				parked = append(parked, pe)
+				continue
+			}
 			if err != nil {
 				return err
 			}
@@ -76,7 +87,32 @@ func (s *Store) finalizeChunk(cutoff time.Time, rules *Rules, policies map[strin
 	if err != nil {
 		return 0, false, fmt.Errorf("store %s: finalise: %w", s.path, err)
 	}
+	if len(parked) > 0 {
+		return n, more, fmt.Errorf("store %s: finalise: %d impression(s) set aside, never counted: %w", s.path, len(parked), errors.Join(parked...))
+	}
 	return n, more, nil
+}
+
+// parkError is a problem with one impression's record (it cannot be
+// decoded, or its policy is unknown to this riffle): the impression is set
+// aside rather than failing the whole chunk, which would stall every later
+// finalisation and, with it, retention.
+type parkError struct{ err error }
+
+func (e *parkError) Error() string { return e.err.Error() }
+func (e *parkError) Unwrap() error { return e.err }
+
+// park moves open-index key k to the parked bucket with the reason, so
+// the impression leaves the finalisation queue but stays on disk for
+// inspection (riffle export shows it as "open").
+func park(tx *bolt.Tx, k []byte, why error) error {
+	if err := tx.Bucket(bucketParked).Put(k, []byte(why.Error())); err != nil {
+		return fmt.Errorf("park %x: %w", k, err)
+	}
+	if err := tx.Bucket(bucketOpen).Delete(k); err != nil {
+		return fmt.Errorf("park %x: %w", k, err)
+	}
+	return nil
 }
 
 // anyDue reports whether some open impression was served at or before
@@ -117,9 +153,12 @@ func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[st
 	imp := tx.Bucket(bucketImp)
 	rec, err := decodeRecord(id, imp.Get(id))
 	if err != nil {
-		return 0, "", err
+		return 0, "", &parkError{err}
 	}
 	clicks, had, err := clicksOf(tx, &rec, rules)
+	if errors.Is(err, ErrCorrupt) {
+		return 0, "", &parkError{err}
+	}
 	if err != nil {
 		return 0, "", err
 	}
@@ -127,7 +166,7 @@ func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[st
 	if rec.Interleaved() {
 		p, err := policyFor(rec.Policy, rules, policies)
 		if err != nil {
-			return 0, "", fmt.Errorf("impression %s: %w", rec.ID, err)
+			return 0, "", &parkError{fmt.Errorf("impression %s: %w", rec.ID, err)}
 		}
 		rec.Score = p.Credit(rec.Slots, clicks)
 		rec.Outcome = merge.Decide(rec.Score, had)

@@ -1,6 +1,7 @@
 package store
 
 import (
+	"errors"
 	"math"
 	"testing"
 	"time"
@@ -185,16 +186,34 @@ func TestAggregateUsersAndRecent(t *testing.T) {
 	}
 }
 
-func TestFinalizeUnknownPolicyStaysOpen(t *testing.T) {
+// TestFinalizeSetsAsideUnknownPolicy checks that an impression whose
+// policy this riffle does not know is set aside, uncounted, and does not
+// stall the impressions after it.
+func TestFinalizeSetsAsideUnknownPolicy(t *testing.T) {
 	st, _ := openTest(t, testOptions(newClock(t0)))
-	im := teamDraftImpression(t0, 1, 0)
-	im.Policy = "no-such-policy"
-	recordAll(t, st, im)
-	if _, err := st.Finalize(t0.Add(time.Hour)); err == nil {
-		t.Fatal("Finalize with an unknown policy succeeded")
+	bad := teamDraftImpression(t0, 1, 0)
+	bad.Policy = "no-such-policy"
+	good := teamDraftImpression(t0.Add(time.Second), 2, 0)
+	recordAll(t, st, bad, good)
+	mustAdd(t, st, Event{Impression: good.ID, Item: "b2", Type: "click", Time: t0.Add(2 * time.Second)})
+	n, err := st.Finalize(t0.Add(time.Hour))
+	if err == nil || !errors.Is(err, merge.ErrUnknownPolicy) {
+		t.Fatalf("Finalize error %v, want one naming the unknown policy", err)
 	}
-	if got, _ := readRecord(t, st, im.ID); got.Final {
+	if n != 1 {
+		t.Errorf("finalised %d impressions, want 1 (the good one)", n)
+	}
+	if got, _ := readRecord(t, st, bad.ID); got.Final {
 		t.Error("impression with an unknown policy was finalised")
+	}
+	if got, _ := readRecord(t, st, good.ID); !got.Final {
+		t.Error("the impression after the bad one was not finalised")
+	}
+	if agg, _ := st.Aggregate("spring-refresh"); agg.Outcomes != [4]int64{0, 0, 1, 0} {
+		t.Errorf("outcomes %v, want only the good impression's challenger win", agg.Outcomes)
+	}
+	if n, err := st.Finalize(t0.Add(2 * time.Hour)); n != 0 || err != nil {
+		t.Errorf("second Finalize = %d, %v; want 0, nil (the bad one is set aside)", n, err)
 	}
 }
 

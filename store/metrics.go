@@ -84,7 +84,7 @@ func (m *metrics) addOutcomes(counted map[string]*[4]int64) {
 // initOutcomeMetrics starts the outcome counters at the stored totals.
 func (s *Store) initOutcomeMetrics() error {
 	counted := make(map[string]*[4]int64)
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		root := tx.Bucket(bucketExp)
 		return root.ForEachBucket(func(name []byte) error {
 			t, err := decodeTotals(string(name), root.Bucket(name).Get(keyTotals))

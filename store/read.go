@@ -12,7 +12,7 @@ import (
 // Experiments returns the names of every experiment in the store, sorted.
 func (s *Store) Experiments() ([]string, error) {
 	var names []string
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketExp).ForEachBucket(func(name []byte) error {
 			names = append(names, string(name))
 			return nil
@@ -33,7 +33,7 @@ func (s *Store) Experiments() ([]string, error) {
 // impression.
 func (s *Store) Aggregate(experiment string) (Aggregate, error) {
 	a := Aggregate{Experiment: experiment, Users: map[uint64][4]int64{}}
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		b, _, _ := expBucket(tx, experiment, false)
 		if b == nil {
 			return nil
@@ -89,7 +89,7 @@ func readRecent(b *bolt.Bucket, last int64) (interleaved, withFeedback int64, er
 // that Open reads) while the store keeps serving, and returns its size.
 func (s *Store) Snapshot(w io.Writer) (int64, error) {
 	var n int64
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		var err error
 		n, err = tx.WriteTo(w)
 		return err

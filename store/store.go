@@ -6,6 +6,8 @@ import (
 	"errors"
 	"fmt"
 	"log/slog"
+	"runtime/debug"
+	"strings"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -28,7 +30,8 @@ var (
 	bucketKeys   = []byte("keys")   // idempotency key -> id + sequence
 	bucketExp    = []byte("exp")    // experiment -> bucket of its aggregates
 	keySchema    = []byte("schema")
-	allBuckets   = [][]byte{bucketImp, bucketOpen, bucketEvents, bucketKeys, bucketExp}
+	bucketParked = []byte("parked") // open-index key -> why it could not be finalised
+	allBuckets   = [][]byte{bucketImp, bucketOpen, bucketEvents, bucketKeys, bucketExp, bucketParked}
 )
 
 // Store is an open riffle store. Its methods are safe for concurrent use.
@@ -67,6 +70,17 @@ func Open(path string, o *Options) (*Store, error) {
 	if err != nil {
 		return nil, err
 	}
+	if err := precheck(path, opt.ReadOnly); err != nil {
+		return nil, err
+	}
+	return open(path, opt)
+}
+
+// open is Open after the options and the file are checked; a bbolt panic
+// over a damaged file becomes an ErrCorrupt error.
+func open(path string, opt Options) (_ *Store, err error) {
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer recoverCorrupt(path, &err)
 	db, err := bolt.Open(path, 0o600, &bolt.Options{
 		Timeout:      opt.Timeout,
 		ReadOnly:     opt.ReadOnly,
@@ -106,6 +120,9 @@ func openError(path string, waited time.Duration, err error) error {
 	case errors.Is(err, berrors.ErrInvalid), errors.Is(err, berrors.ErrVersionMismatch),
 		errors.Is(err, berrors.ErrChecksum):
 		return fmt.Errorf("store %s: %w (%v)", path, ErrNotStore, err)
+	case strings.Contains(err.Error(), "file size too small"):
+		// bbolt's own words for a file shorter than its two meta pages.
+		return fmt.Errorf("store %s: %w: the file is truncated (%v)", path, ErrCorrupt, err)
 	}
 	return fmt.Errorf("store %s: %w", path, err)
 }
@@ -125,7 +142,7 @@ func (s *Store) initSchema() error {
 		return nil
 	}
 	if s.opt.ReadOnly {
-		return s.db.View(check)
+		return s.view(check)
 	}
 	return s.db.Update(func(tx *bolt.Tx) error {
 		if tx.Bucket(bucketMeta) == nil {
@@ -138,6 +155,9 @@ func (s *Store) initSchema() error {
 			}
 			if err := meta.Put(keySchema, binary.AppendUvarint(nil, schemaVersion)); err != nil {
 				return fmt.Errorf("store %s: write schema: %w", s.path, err)
+			}
+			if err := meta.Put(keyInstance, newInstance()); err != nil {
+				return fmt.Errorf("store %s: write instance: %w", s.path, err)
 			}
 		}
 		if err := check(tx); err != nil {

@@ -52,6 +52,19 @@ func checkInvariants(tx *bolt.Tx) error {
 	if err != nil {
 		return err
 	}
+	// A parked impression left the open index without becoming final.
+	if parked := tx.Bucket(bucketParked); parked != nil {
+		err = parked.ForEach(func(k, _ []byte) error {
+			if len(k) != 8+len(ID{}) {
+				return fmt.Errorf("parked key %x: %w", k, ErrCorrupt)
+			}
+			open[ID(k[8:])] = true
+			return nil
+		})
+		if err != nil {
+			return err
+		}
+	}
 	recs := map[ID][]string{} // id -> items shown
 	err = tx.Bucket(bucketImp).ForEach(func(k, v []byte) error {
 		r, err := decodeRecord(k, v)
