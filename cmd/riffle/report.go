@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"riffle/merge/verdict"
+	"riffle/proxy/config"
 	"riffle/store"
 )
 
@@ -88,8 +89,9 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 	fs.Float64Var(&f.Params.Power, "power", 0.8, "planned power behind needed")
 	fs.Float64Var(&f.Params.MDE, "mde", 0.02, "minimum detectable Delta behind needed")
 	fs.Float64Var(&f.Params.Margin, "margin", 0, "non-inferiority and equivalence margin on Delta")
+	configPath := fs.String("config", "", "riffle.yaml to take the experiment's name, alpha, power, mde and margin from, so the report matches the live API (flags given win)")
 	fs.Usage = func() {
-		fmt.Fprintln(stderr, "usage: riffle report --store a.db [--store b.db ...] [--experiment NAME] [--format text|json|html]")
+		fmt.Fprintln(stderr, "usage: riffle report --store a.db [--store b.db ...] [--experiment NAME] [--config riffle.yaml] [--format text|json|html]")
 		fs.PrintDefaults()
 	}
 	if err := fs.Parse(args); err != nil {
@@ -97,6 +99,11 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 			return f, err
 		}
 		return f, errUsage
+	}
+	if *configPath != "" {
+		if err := paramsFromConfig(&f, fs, *configPath); err != nil {
+			return f, err
+		}
 	}
 	switch {
 	case fs.NArg() > 0:
@@ -129,6 +136,7 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 		}
 	}()
 	held := map[string][]string{} // experiment -> stores holding it
+	seen := map[string]string{}   // instance id -> first store with it
 	for _, p := range paths {
 		if err := ctx.Err(); err != nil {
 			return store.Aggregate{}, err
@@ -138,6 +146,9 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 			return store.Aggregate{}, openProblem(p, timeout, err)
 		}
 		open = append(open, s)
+		if err := notCopy(s, p, seen); err != nil {
+			return store.Aggregate{}, err
+		}
 		names, err := s.Experiments()
 		if err != nil {
 			return store.Aggregate{}, fmt.Errorf("%s: %w", p, err)
@@ -167,6 +178,48 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 		total.Add(a)
 	}
 	return total, nil
+}
+
+// paramsFromConfig takes the experiment's name and statistical settings
+// from a config file, except those given as flags.
+func paramsFromConfig(f *reportFlags, fs *flag.FlagSet, path string) error {
+	cfg, err := config.Load(path)
+	if err != nil {
+		return fmt.Errorf("--config: %w", err)
+	}
+	set := map[string]bool{}
+	fs.Visit(func(fl *flag.Flag) { set[fl.Name] = true })
+	e := cfg.Experiment
+	for name, pair := range map[string]struct {
+		dst *float64
+		v   float64
+	}{"alpha": {&f.Params.Alpha, e.Alpha}, "power": {&f.Params.Power, e.Power}, "mde": {&f.Params.MDE, e.MDE}, "margin": {&f.Params.Margin, e.Margin}} {
+		if !set[name] {
+			*pair.dst = pair.v
+		}
+	}
+	if !set["experiment"] {
+		f.Experiment = e.Name
+	}
+	return nil
+}
+
+// notCopy refuses a store that is a copy of one already given (the same
+// file twice, or two snapshots of one sidecar), which would count its
+// impressions twice.
+func notCopy(s *store.Store, path string, seen map[string]string) error {
+	id, err := s.Instance()
+	if err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	if id == "" {
+		return nil // a file from before instance ids: cannot tell
+	}
+	if first, ok := seen[id]; ok {
+		return fmt.Errorf("%s and %s are copies of one sidecar's store (instance %s); give each sidecar's store once, or its impressions count twice", first, path, id)
+	}
+	seen[id] = path
+	return nil
 }
 
 // openProblem says in words why a store file could not be opened, keeping

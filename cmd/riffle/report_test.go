@@ -231,6 +231,14 @@ func TestReportStoreProblems(t *testing.T) {
 	if err := os.WriteFile(foreign, bytes.Repeat([]byte("compost turns every week\n"), 400), 0o600); err != nil {
 		t.Fatal(err)
 	}
+	whole, err := os.ReadFile(good)
+	if err != nil {
+		t.Fatal(err)
+	}
+	truncated := filepath.Join(dir, "truncated.db")
+	if err := os.WriteFile(truncated, whole[:len(whole)/2], 0o600); err != nil {
+		t.Fatal(err)
+	}
 	locked := filepath.Join(dir, "live.db")
 	live, err := store.Open(locked, &store.Options{FinalizeEvery: -1})
 	if err != nil {
@@ -248,6 +256,8 @@ func TestReportStoreProblems(t *testing.T) {
 		{"locked file", []string{"--store", locked, "--timeout", "100ms"}, []string{"live.db: locked by a running riffle", "/api/v1/snapshot"}},
 		{"unknown experiment", []string{"--store", good, "--experiment", "seed-swap"}, []string{`"seed-swap" is in none of the stores`, "spring-refresh"}},
 		{"several experiments", []string{"--store", two}, []string{"several experiments (mulch-finder, spring-refresh)", "--experiment"}},
+		{"same store twice", []string{"--store", good, "--store", good}, []string{"copies of one sidecar's store", "count twice"}},
+		{"truncated file", []string{"--store", truncated}, []string{"truncated.db", "damaged or truncated"}},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -297,6 +307,44 @@ func TestReportBadFlags(t *testing.T) {
 		code, out, errOut := runCmd(t, runReport, c.args...)
 		if code != 2 || out != "" || !strings.Contains(errOut, c.want) {
 			t.Errorf("riffle report %v: exit %d, stdout %q, stderr %q; want exit 2 and %q", c.args, code, out, errOut, c.want)
+		}
+	}
+}
+
+// TestReportTakesSettingsFromConfig checks that --config supplies the
+// experiment's statistical settings (so the report matches the live API),
+// and that a flag given on the command line still wins.
+func TestReportTakesSettingsFromConfig(t *testing.T) {
+	dir := t.TempDir()
+	db := filepath.Join(dir, "a.db")
+	writeStore(t, db, plannedTraffic(rand.New(rand.NewPCG(4, 1)), "spring-refresh", 200, 50, time.Second, trafficMix{0.3, 0.3, 0.1, 0.1}))
+	cfgPath := filepath.Join(dir, "riffle.yaml")
+	cfg := `incumbent: {url: "http://127.0.0.1:7001"}
+challenger: {url: "http://127.0.0.1:7002"}
+routes: [{path: /v1/recommend, list: /items, id: /sku}]
+user: {header: Shopper-Id}
+experiment: {name: spring-refresh, alpha: 0.01, mde: 0.05, margin: 0.03}
+`
+	if err := os.WriteFile(cfgPath, []byte(cfg), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		args      []string
+		alpha, mg float64
+	}{
+		{[]string{"--config", cfgPath}, 0.01, 0.03},
+		{[]string{"--config", cfgPath, "--margin", "0.01"}, 0.01, 0.01},
+	} {
+		code, out, errOut := runCmd(t, runReport, append([]string{"--store", db, "--format", "json"}, c.args...)...)
+		if code != 0 {
+			t.Fatalf("%v: exit %d: %s", c.args, code, errOut)
+		}
+		var st struct{ Alpha, Margin, MDE float64 }
+		if err := json.Unmarshal([]byte(out), &st); err != nil {
+			t.Fatal(err)
+		}
+		if st.Alpha != c.alpha || st.Margin != c.mg || st.MDE != 0.05 {
+			t.Errorf("%v: alpha %v margin %v mde %v; want %v, %v, 0.05", c.args, st.Alpha, st.Margin, st.MDE, c.alpha, c.mg)
 		}
 	}
 }
