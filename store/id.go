@@ -46,7 +46,9 @@ func ParseID(s string) (ID, error) {
 		return id, fmt.Errorf("impression id %q: want 26 characters, have %d", s, len(s))
 	}
 	b, err := idEncoding.DecodeString(s)
-	if err != nil || len(b) != 16 {
+	// The last character carries 2 spare bits; requiring the canonical
+	// form keeps one text per id (RFC 4648 section 3.5).
+	if err != nil || len(b) != 16 || idEncoding.EncodeToString(b) != s {
 		return id, fmt.Errorf("impression id %q: not a riffle id", s)
 	}
 	copy(id[:], b)

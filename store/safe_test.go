@@ -5,6 +5,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 )
@@ -109,4 +110,22 @@ func readAll(path string) error {
 		}
 	}
 	return st.Export(io.Discard, time.Time{})
+}
+
+// TestParseIDIsStrict checks that each id has one text form: the last
+// character of 26 carries 2 spare bits (RFC 4648 section 3.5: they must be
+// zero), so a different last character must not alias the same id.
+func TestParseIDIsStrict(t *testing.T) {
+	id := NewID(t0)
+	s := id.String()
+	got, err := ParseID(s)
+	if err != nil || got != id {
+		t.Fatalf("ParseID(String()) = %v, %v", got, err)
+	}
+	alias := []byte(s)
+	last := strings.IndexByte("abcdefghijklmnopqrstuvwxyz234567", alias[25])
+	alias[25] = "abcdefghijklmnopqrstuvwxyz234567"[last|1]
+	if _, err := ParseID(string(alias)); err == nil {
+		t.Errorf("ParseID(%q) accepted an alias of %q", alias, s)
+	}
 }

@@ -78,6 +78,11 @@ func parseLine(b []byte, now time.Time) (store.Event, error) {
 		if len(b) == 0 {
 			return store.Event{}, malformed("malformed JSON: empty line")
 		}
+		if !json.Valid(b) {
+			var v any
+			err := json.Unmarshal(b, &v)
+			return store.Event{}, malformed("malformed JSON: %v", err)
+		}
 		return store.Event{}, malformed("malformed JSON: want an object, have %s", jsonKind(b[0]))
 	}
 	var w wireEvent

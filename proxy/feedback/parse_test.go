@@ -111,3 +111,23 @@ func FuzzParseBody(f *testing.F) {
 		}
 	})
 }
+
+// TestParseLineMalformedReasons checks that a line that is not JSON at all
+// is reported as such (with the decoder's own words), and a line that is
+// JSON but not an object names what it is.
+func TestParseLineMalformedReasons(t *testing.T) {
+	tests := []struct{ in, want string }{
+		{"not json", "malformed JSON: invalid character 'o' in literal null (expecting 'u')"},
+		{"garbage", "malformed JSON: invalid character 'g' looking for beginning of value"},
+		{"[1,2]", "malformed JSON: want an object, have array"},
+		{`"rake"`, "malformed JSON: want an object, have string"},
+		{"42", "malformed JSON: want an object, have number"},
+		{"null", "malformed JSON: want an object, have null"},
+	}
+	for _, tc := range tests {
+		_, err := parseLine([]byte(tc.in), time.Now())
+		if err == nil || err.Error() != tc.want {
+			t.Errorf("parseLine(%q) error %v, want %q", tc.in, err, tc.want)
+		}
+	}
+}
