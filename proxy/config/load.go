@@ -30,9 +30,11 @@ func Load(path string) (*Config, error) {
 // line.
 func Parse(data []byte, source string) (*Config, error) {
 	c, where, problems := decode(data)
-	if len(problems) == 0 {
+	if c != nil {
+		// Unknown keys do not stop the value checks: check reports
+		// every problem of a file at once.
 		c.ApplyDefaults()
-		problems = append(c.problems(), required(c, where)...)
+		problems = append(problems, append(c.problems(), required(c, where)...)...)
 	}
 	if len(problems) > 0 {
 		locate(problems, where.lines)
@@ -70,12 +72,29 @@ func decode(data []byte) (*Config, *schema, []Problem) {
 	}
 	s.walk(bodies[0], reflect.TypeFor[Config](), "")
 	if len(s.problems) > 0 {
+		// Decode the rest leniently when only unknown keys are wrong, so
+		// that the values can still be checked; a wrongly typed value
+		// stops here.
+		if onlyUnknownKeys(s.problems) && yaml.NodeToValue(bodies[0], c) == nil {
+			return c, s, s.problems
+		}
 		return nil, s, s.problems
 	}
 	if err := yaml.NodeToValue(bodies[0], c, yaml.DisallowUnknownField()); err != nil {
 		return nil, s, []Problem{yamlProblem(err, s.at)}
 	}
 	return c, s, nil
+}
+
+// onlyUnknownKeys reports whether every problem is an unknown key, the one
+// kind a lenient decode can step over without guessing at a value.
+func onlyUnknownKeys(ps []Problem) bool {
+	for _, p := range ps {
+		if !strings.HasPrefix(p.Message, "unknown key ") {
+			return false
+		}
+	}
+	return true
 }
 
 // yamlProblem turns a parser or decoder error into a Problem, finding the

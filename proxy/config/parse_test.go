@@ -235,3 +235,26 @@ func TestErrorLines(t *testing.T) {
 		t.Error("a restart *Error must match ErrNeedsRestart and not ErrInvalid")
 	}
 }
+
+// TestUnknownKeysDoNotHideValueProblems checks that a file with an unknown
+// key still has its values checked, so riffle check prints every problem
+// at once.
+func TestUnknownKeysDoNotHideValueProblems(t *testing.T) {
+	src := `colour: green
+incumbent: {url: "http://127.0.0.1:7001", timeout: -5ms}
+challenger: {url: "http://127.0.0.1:7002"}
+routes: [{path: /v1/recommend, list: items, id: /sku}]
+user: {header: Shopper-Id}
+experiment: {name: spring-refresh, ramp: 2}
+`
+	_, err := Parse([]byte(src), "t.yaml")
+	got := map[string]bool{}
+	for _, p := range problemsOf(t, err) {
+		got[p.Path] = true
+	}
+	for _, want := range []string{"colour", "incumbent.timeout", "routes[0].list", "experiment.ramp"} {
+		if !got[want] {
+			t.Errorf("no problem reported at %s; got %v", want, got)
+		}
+	}
+}
