@@ -96,7 +96,7 @@ type Trip struct {
 	// Reason says in words what was seen.
 	Reason string `json:"reason"`
 	// At is when the guardrail tripped.
-	At time.Time `json:"at"`
+	At time.Time `json:"at,omitzero"`
 }
 
 // Guard watches the challenger and gates its ramp. Create it with New.
