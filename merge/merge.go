@@ -118,3 +118,20 @@ func Decide(s Score, hadEvents bool) Outcome {
 	}
 	return Tie
 }
+
+// Decider is implemented by a policy whose Score is not a tally but the
+// probability of each side winning; it turns a score into an outcome
+// itself, with randomness from the impression's seed so the outcome can be
+// re-derived.
+type Decider interface {
+	Decide(s Score, hadEvents bool, seed uint64) Outcome
+}
+
+// DecideFor returns the outcome of an impression scored s under policy p:
+// p's own Decide when it is a Decider, else Decide.
+func DecideFor(p Policy, s Score, hadEvents bool, seed uint64) Outcome {
+	if d, ok := p.(Decider); ok {
+		return d.Decide(s, hadEvents, seed)
+	}
+	return Decide(s, hadEvents)
+}

@@ -169,7 +169,7 @@ func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[st
 			return 0, "", &parkError{fmt.Errorf("impression %s: %w", rec.ID, err)}
 		}
 		rec.Score = p.Credit(rec.Slots, clicks)
-		rec.Outcome = merge.Decide(rec.Score, had)
+		rec.Outcome = merge.DecideFor(p, rec.Score, had, rec.Seed)
 		if err := addOutcome(tx, &rec.Impression, rec.Outcome); err != nil {
 			return 0, "", err
 		}

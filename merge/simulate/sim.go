@@ -75,7 +75,8 @@ func (s *sim) run(ctx context.Context, n int, r *rand.Rand) (tally, error) {
 			}
 		}
 		q := &s.qs[pick.IntN(len(s.qs))]
-		slots = s.policy.Interleave(slots, q.A, q.B, s.slots, pick.Uint64())
+		seed := pick.Uint64()
+		slots = s.policy.Interleave(slots, q.A, q.B, s.slots, seed)
 		items = items[:0]
 		for _, sl := range slots {
 			items = append(items, sl.Item)
@@ -91,7 +92,7 @@ func (s *sim) run(ctx context.Context, n int, r *rand.Rand) (tally, error) {
 			clicks = append(clicks, merge.Click{Pos: p, Weight: 1})
 		}
 		score := s.policy.Credit(slots, clicks)
-		o := merge.Decide(score, true)
+		o := merge.DecideFor(s.policy, score, true, seed)
 		t.outcomes[o]++
 		d := score.Challenger - score.Incumbent
 		t.credit += d
