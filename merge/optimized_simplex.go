@@ -112,20 +112,9 @@ func optBasis(a *mat.Dense, x, b []float64) ([]int, error) {
 	var basic []int
 	var q [][]float64 // orthonormal basis of the chosen columns' span
 	add := func(j int) bool {
-		v := mat.Col(nil, j, a)
-		norm0 := math.Sqrt(optDot(v, v))
-		for _, u := range q {
-			d := optDot(v, u)
-			for k := range v {
-				v[k] -= d * u[k]
-			}
-		}
-		norm := math.Sqrt(optDot(v, v))
-		if norm0 == 0 || norm <= 1e-9*norm0 {
+		v, ok := optOrthonormalize(mat.Col(nil, j, a), q)
+		if !ok {
 			return false
-		}
-		for k := range v {
-			v[k] /= norm
 		}
 		q = append(q, v)
 		basic = append(basic, j)

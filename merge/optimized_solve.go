@@ -243,25 +243,36 @@ func optIndependentRows(rows [][]float64) []int {
 	var basis [][]float64
 	var kept []int
 	for i, row := range rows {
-		v := append([]float64(nil), row...)
-		norm0 := math.Sqrt(optDot(v, v))
-		for _, q := range basis {
-			d := optDot(v, q)
-			for k := range v {
-				v[k] -= d * q[k]
-			}
-		}
-		norm := math.Sqrt(optDot(v, v))
-		if norm0 == 0 || norm <= 1e-9*norm0 {
+		v, ok := optOrthonormalize(append([]float64(nil), row...), basis)
+		if !ok {
 			continue
-		}
-		for k := range v {
-			v[k] /= norm
 		}
 		basis = append(basis, v)
 		kept = append(kept, i)
 	}
 	return kept
+}
+
+// optOrthonormalize removes from v (in place) its components along the
+// orthonormal vectors of basis (one Gram-Schmidt step) and scales the rest
+// to unit length. It reports false when v is zero or lies, to a relative
+// 1e-9, in the span of basis.
+func optOrthonormalize(v []float64, basis [][]float64) ([]float64, bool) {
+	norm0 := math.Sqrt(optDot(v, v))
+	for _, q := range basis {
+		d := optDot(v, q)
+		for k := range v {
+			v[k] -= d * q[k]
+		}
+	}
+	norm := math.Sqrt(optDot(v, v))
+	if norm0 == 0 || norm <= 1e-9*norm0 {
+		return v, false
+	}
+	for k := range v {
+		v[k] /= norm
+	}
+	return v, true
 }
 
 // optDot is the inner product of two vectors of equal length.

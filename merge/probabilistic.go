@@ -227,46 +227,6 @@ func (l *piList) draw(w []float64, c *coins) int {
 // slot favours the challenger 55% of the time). Probabilistic.Decide
 // therefore does not take the sign: see there.
 func (Probabilistic) Credit(slots []Slot, clicks []Click) Score {
-	return probabilisticCredit(slots, clicks)
-}
-
-// Decide turns the marginalised credit into one impression's outcome by
-// drawing a team assignment from its posterior P(a | list, clicks): the
-// challenger wins with probability Score.Challenger, the incumbent with
-// Score.Incumbent, else a tie. The posterior draw is distributed as the
-// assignment that really produced the list, so win and loss counts have
-// expectation sum(P(challenger)) and sum(P(incumbent)) exactly: their
-// difference is the published expected outcome summed over impressions,
-// zero under random clicks on every list pair, where the sign of E[o]
-// alone is not. The draw comes from the impression's seed (mixed so it is
-// independent of the interleaving's own draws), so the outcome can be
-// re-derived for audit.
-func (Probabilistic) Decide(s Score, hadEvents bool, seed uint64) Outcome {
-	if !hadEvents {
-		return NoFeedback
-	}
-	u := float64(splitmix(seed^0x6f7574636f6d65)>>11) / (1 << 53)
-	switch {
-	case u < s.Challenger:
-		return ChallengerWin
-	case u < s.Challenger+s.Incumbent:
-		return IncumbentWin
-	}
-	return Tie
-}
-
-// splitmix is SplitMix64's output function (Steele, Lea & Flood, OOPSLA
-// 2014): a well-mixed 64-bit value from a 64-bit input.
-func splitmix(x uint64) uint64 {
-	x += 0x9e3779b97f4a7c15
-	x = (x ^ (x >> 30)) * 0xbf58476d1ce4e5b9
-	x = (x ^ (x >> 27)) * 0x94d049bb133111eb
-	return x ^ (x >> 31)
-}
-
-var _ Decider = Probabilistic{}
-
-func probabilisticCredit(slots []Slot, clicks []Click) Score {
 	var wbuf [64]float64
 	w := wbuf[:]
 	if len(slots) > len(w) {
@@ -353,3 +313,39 @@ func piNormal(sure float64, terms []piTerm) Score {
 	up := 0.5 * math.Erfc(-mean/math.Sqrt(2*variance))
 	return Score{Incumbent: 1 - up, Challenger: up}
 }
+
+// Decide turns the marginalised credit into one impression's outcome by
+// drawing a team assignment from its posterior P(a | list, clicks): the
+// challenger wins with probability Score.Challenger, the incumbent with
+// Score.Incumbent, else a tie. The posterior draw is distributed as the
+// assignment that really produced the list, so win and loss counts have
+// expectation sum(P(challenger)) and sum(P(incumbent)) exactly: their
+// difference is the published expected outcome summed over impressions,
+// zero under random clicks on every list pair, where the sign of E[o]
+// alone is not. The draw comes from the impression's seed (mixed so it is
+// independent of the interleaving's own draws), so the outcome can be
+// re-derived for audit.
+func (Probabilistic) Decide(s Score, hadEvents bool, seed uint64) Outcome {
+	if !hadEvents {
+		return NoFeedback
+	}
+	u := float64(splitmix(seed^0x6f7574636f6d65)>>11) / (1 << 53)
+	switch {
+	case u < s.Challenger:
+		return ChallengerWin
+	case u < s.Challenger+s.Incumbent:
+		return IncumbentWin
+	}
+	return Tie
+}
+
+// splitmix is SplitMix64's output function (Steele, Lea & Flood, OOPSLA
+// 2014): a well-mixed 64-bit value from a 64-bit input.
+func splitmix(x uint64) uint64 {
+	x += 0x9e3779b97f4a7c15
+	x = (x ^ (x >> 30)) * 0xbf58476d1ce4e5b9
+	x = (x ^ (x >> 27)) * 0x94d049bb133111eb
+	return x ^ (x >> 31)
+}
+
+var _ Decider = Probabilistic{}

@@ -42,21 +42,15 @@ func Verify(path string) error {
 
 func checkInvariants(tx *bolt.Tx) error {
 	open := map[ID]bool{}
-	err := tx.Bucket(bucketOpen).ForEach(func(k, _ []byte) error {
-		if len(k) != 8+len(ID{}) {
-			return fmt.Errorf("open index key %x: %w", k, ErrCorrupt)
+	// A parked impression left the open index without becoming final, so
+	// for this check it counts as open.
+	for _, b := range []*bolt.Bucket{tx.Bucket(bucketOpen), tx.Bucket(bucketParked)} {
+		if b == nil {
+			continue // a file from before the parked bucket
 		}
-		open[ID(k[8:])] = true
-		return nil
-	})
-	if err != nil {
-		return err
-	}
-	// A parked impression left the open index without becoming final.
-	if parked := tx.Bucket(bucketParked); parked != nil {
-		err = parked.ForEach(func(k, _ []byte) error {
+		err := b.ForEach(func(k, _ []byte) error {
 			if len(k) != 8+len(ID{}) {
-				return fmt.Errorf("parked key %x: %w", k, ErrCorrupt)
+				return fmt.Errorf("open or parked index key %x: %w", k, ErrCorrupt)
 			}
 			open[ID(k[8:])] = true
 			return nil
@@ -66,7 +60,7 @@ func checkInvariants(tx *bolt.Tx) error {
 		}
 	}
 	recs := map[ID][]string{} // id -> items shown
-	err = tx.Bucket(bucketImp).ForEach(func(k, v []byte) error {
+	err := tx.Bucket(bucketImp).ForEach(func(k, v []byte) error {
 		r, err := decodeRecord(k, v)
 		if err != nil {
 			return err
