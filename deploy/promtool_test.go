@@ -69,7 +69,7 @@ func TestPromtoolChecksScrapeConfig(t *testing.T) {
 	}
 	t.Logf("this promtool lacks Kubernetes discovery; checking with static_configs instead")
 	swapped := strings.Replace(string(src), "    kubernetes_sd_configs:\n      - role: pod\n",
-		"    static_configs:\n      - targets: [\"127.0.0.1:9464\"]\n", 1)
+		"    static_configs:\n      - targets: [\"127.0.0.1:7464\"]\n", 1)
 	if swapped == string(src) {
 		t.Fatal("scrape.yaml's kubernetes_sd_configs block changed shape; update this test")
 	}

@@ -205,7 +205,7 @@ func fleet(experiment string, challenger, incumbent, tie, none float64) []sample
 		a := math.Floor(total * 0.3)
 		for pod, v := range map[string]float64{"recs-a": a, "recs-b": total - a} {
 			db = append(db, sample{labels: map[string]string{
-				"__name__": "riffle_impression_outcomes_total", "job": "riffle", "instance": pod + ":9464",
+				"__name__": "riffle_impression_outcomes_total", "job": "riffle", "instance": pod + ":7464",
 				"pod": pod, "experiment": experiment, "outcome": outcome}, v: v})
 		}
 	}

@@ -17,7 +17,7 @@ import (
 // riffle's own strict loader, so a key the loader does not know, or a
 // value it rejects, fails here rather than at bench time.
 func TestRiffleConfig(t *testing.T) {
-	b, err := riffleConfig("127.0.0.1:18080", "127.0.0.1:19464", "/tmp/bench/riffle.db",
+	b, err := riffleConfig("127.0.0.1:18080", "127.0.0.1:17464", "/tmp/bench/riffle.db",
 		"http://127.0.0.1:17001", "http://127.0.0.1:17002", 150*time.Millisecond)
 	if err != nil {
 		t.Fatal(err)
@@ -31,7 +31,7 @@ func TestRiffleConfig(t *testing.T) {
 		got, want any
 	}{
 		{"listen", c.Listen, "127.0.0.1:18080"},
-		{"admin", c.Admin, "127.0.0.1:19464"},
+		{"admin", c.Admin, "127.0.0.1:17464"},
 		{"store", c.Store, "/tmp/bench/riffle.db"},
 		{"incumbent.url", c.Incumbent.URL, "http://127.0.0.1:17001"},
 		{"challenger.timeout", c.Challenger.Timeout, 150 * time.Millisecond},

@@ -38,7 +38,7 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	var f demoFlags
 	fs.DurationVar(&f.duration, "duration", 60*time.Second, "how long the shoppers browse")
 	fs.StringVar(&f.listen, "listen", "127.0.0.1:8080", "riffle's data-plane address")
-	fs.StringVar(&f.admin, "admin", "127.0.0.1:9464", "riffle's admin address (status page, metrics, API)")
+	fs.StringVar(&f.admin, "admin", "127.0.0.1:7464", "riffle's admin address (status page, metrics, API)")
 	fs.Float64Var(&f.rate, "rate", 150, "recommendation requests per second")
 	fs.Uint64Var(&f.seed, "seed", 1, "seed of the shop and the shoppers")
 	if err := fs.Parse(args); err != nil {

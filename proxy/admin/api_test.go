@@ -23,7 +23,7 @@ func TestConfigViewGolden(t *testing.T) {
 	ramp := 0.25
 	cfg := &config.Config{
 		Listen:         "0.0.0.0:8080",
-		Admin:          "0.0.0.0:9464",
+		Admin:          "0.0.0.0:7464",
 		AdminTokenFile: "/etc/riffle/secret/admin-token",
 		Store:          "/var/lib/riffle/riffle.db",
 		Incumbent:      config.Backend{URL: "http://127.0.0.1:7001", Timeout: 200 * time.Millisecond},

@@ -20,7 +20,7 @@ type Config struct {
 	// POST /feedback). Default 127.0.0.1:8080.
 	Listen string `yaml:"listen"`
 	// Admin is the admin listener's address (/metrics, /status, /healthz,
-	// /readyz, /api/v1/...). Default 127.0.0.1:9464.
+	// /readyz, /api/v1/...). Default 127.0.0.1:7464.
 	Admin string `yaml:"admin"`
 	// AdminTokenFile, when set, names a file holding the bearer token that
 	// mutating admin endpoints require; it must be readable and non-empty.

@@ -5,7 +5,7 @@ import "time"
 // The defaults that ApplyDefaults fills in, documented on each field.
 const (
 	DefaultListen             = "127.0.0.1:8080"
-	DefaultAdmin              = "127.0.0.1:9464"
+	DefaultAdmin              = "127.0.0.1:7464"
 	DefaultStore              = "riffle.db"
 	DefaultQueueSize          = 65536
 	DefaultQueueBatch         = 1024

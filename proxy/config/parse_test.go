@@ -22,7 +22,7 @@ func TestParseDefaults(t *testing.T) {
 		got, want any
 	}{
 		{"listen", c.Listen, "127.0.0.1:8080"},
-		{"admin", c.Admin, "127.0.0.1:9464"},
+		{"admin", c.Admin, "127.0.0.1:7464"},
 		{"store", c.Store, "riffle.db"},
 		{"queue.size", c.Queue.Size, 65536},
 		{"queue.batch", c.Queue.Batch, 1024},

@@ -14,8 +14,8 @@ func TestRestartOnly(t *testing.T) {
 	}{
 		{"listen", func(c *Config) { c.Listen = "0.0.0.0:8080" },
 			[]Problem{{Path: "listen", Message: `changed from "127.0.0.1:8080" to "0.0.0.0:8080"; this needs a restart`}}},
-		{"admin", func(c *Config) { c.Admin = "127.0.0.1:9465" },
-			[]Problem{{Path: "admin", Message: `changed from "127.0.0.1:9464" to "127.0.0.1:9465"; this needs a restart`}}},
+		{"admin", func(c *Config) { c.Admin = "127.0.0.1:7465" },
+			[]Problem{{Path: "admin", Message: `changed from "127.0.0.1:7464" to "127.0.0.1:7465"; this needs a restart`}}},
 		{"store", func(c *Config) { c.Store = "other.db" },
 			[]Problem{{Path: "store", Message: `changed from "riffle.db" to "other.db"; this needs a restart`}}},
 		{"retention", func(c *Config) { c.StoreRetention = 24 * time.Hour },
