@@ -1,6 +1,10 @@
 package store
 
-import "time"
+import (
+	"time"
+
+	"riffle/merge/verdict"
+)
 
 // Aggregate is what the statistics need of one experiment, summed over
 // finalised impressions. Aggregates of several store files (one per sidecar)
@@ -67,5 +71,22 @@ func (a *Aggregate) Add(o Aggregate) {
 	}
 	if a.Experiment == "" {
 		a.Experiment = o.Experiment
+	}
+}
+
+// Input returns the statistics' input for the aggregate under p. Ramp is
+// left nil: the store does not know the ramp in force.
+func (a Aggregate) Input(p verdict.Params) verdict.Input {
+	return verdict.Input{
+		Experiment:         a.Experiment,
+		Policy:             a.Policy,
+		Impressions:        a.Impressions,
+		Interleaved:        a.Interleaved,
+		Outcomes:           a.Outcomes,
+		Users:              a.Users,
+		RecentImpressions:  a.RecentImpressions,
+		RecentWithFeedback: a.RecentWithFeedback,
+		RecentSpan:         a.RecentSpan,
+		Params:             p,
 	}
 }

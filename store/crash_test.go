@@ -3,6 +3,7 @@ package store_test
 import (
 	"bufio"
 	"bytes"
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -226,7 +227,7 @@ func checkAfterCrash(t *testing.T, path string, a *acked) {
 func exported(t *testing.T, st *store.Store) (ids, keys map[string]bool) {
 	t.Helper()
 	var buf bytes.Buffer
-	if err := st.Export(&buf, time.Time{}); err != nil {
+	if err := st.Export(context.Background(), &buf, time.Time{}); err != nil {
 		t.Fatal(err)
 	}
 	ids, keys = map[string]bool{}, map[string]bool{}

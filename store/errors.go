@@ -42,3 +42,9 @@ var (
 	// key is given. A duplicate is not recorded again.
 	ErrDuplicate = errors.New("duplicate event")
 )
+
+// ErrUnavailable means the store cannot accept or answer now: its database
+// is down or unreachable, or a bounded wait for it passed. Nothing was
+// recorded; the caller may retry (POST /feedback answers 503 with
+// Retry-After).
+var ErrUnavailable = errors.New("store unavailable")

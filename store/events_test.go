@@ -32,7 +32,7 @@ func TestAddEventsRejects(t *testing.T) {
 		{"before the impression", nil, with(func(e *Event) { e.Time = t0.Add(-time.Second) }), ErrTooEarly, "served at 2026-03-14T09:00:00Z"},
 		{"after the window", nil, with(func(e *Event) { e.Time = t0.Add(30*time.Minute + time.Nanosecond) }), ErrTooLate, "closed at 2026-03-14T09:30:00Z"},
 		{"impression already final", func(t *testing.T, st *Store) {
-			if n, err := st.Finalize(t0.Add(time.Hour)); n != 1 || err != nil {
+			if n, err := st.Finalize(context.Background(), t0.Add(time.Hour)); n != 1 || err != nil {
 				t.Fatalf("Finalize = %d, %v; want 1, nil", n, err)
 			}
 		}, ok, ErrTooLate, "already final"},
@@ -131,10 +131,10 @@ func TestReplayIsIdempotent(t *testing.T) {
 			t.Errorf("replayed event %d: %v, want ErrDuplicate", i, err)
 		}
 	}
-	if _, err := st.Finalize(t0.Add(time.Hour)); err != nil {
+	if _, err := st.Finalize(context.Background(), t0.Add(time.Hour)); err != nil {
 		t.Fatal(err)
 	}
-	agg, err := st.Aggregate("spring-refresh")
+	agg, err := st.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -2,6 +2,7 @@ package store
 
 import (
 	"bufio"
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -50,8 +51,9 @@ type exportScore struct {
 // Export writes every impression served at or after since (zero: all) to
 // w as NDJSON, oldest first, one line per impression with its slots, its
 // events and its outcome ("challenger", "incumbent", "tie", "none", or
-// "open" while its window is open). It reads one consistent snapshot.
-func (s *Store) Export(w io.Writer, since time.Time) error {
+// "open" while its window is open). It reads one consistent snapshot;
+// a cancelled ctx stops it between lines.
+func (s *Store) Export(ctx context.Context, w io.Writer, since time.Time) error {
 	bw := bufio.NewWriter(w)
 	err := s.view(func(tx *bolt.Tx) error {
 		c := tx.Bucket(bucketImp).Cursor()
@@ -62,6 +64,9 @@ func (s *Store) Export(w io.Writer, since time.Time) error {
 			k, v = c.Seek(from)
 		}
 		for ; k != nil; k, v = c.Next() {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
 			rec, err := decodeRecord(k, v)
 			if err != nil {
 				return err

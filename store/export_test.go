@@ -3,6 +3,7 @@ package store
 import (
 	"bufio"
 	"bytes"
+	"context"
 	"encoding/json"
 	"flag"
 	"os"
@@ -32,7 +33,7 @@ func exportFixture(t *testing.T) *Store {
 		Event{Impression: won.ID, Item: "b1", Type: "purchase", Time: t0.Add(5 * time.Minute), Key: "order-17"},
 		Event{Impression: open.ID, Item: "a2", Type: "click", Time: t0.Add(time.Hour + time.Second)},
 	)
-	if n, err := st.Finalize(t0.Add(45 * time.Minute)); n != 2 || err != nil {
+	if n, err := st.Finalize(context.Background(), t0.Add(45*time.Minute)); n != 2 || err != nil {
 		t.Fatalf("Finalize = %d, %v; want 2", n, err)
 	}
 	return st
@@ -49,7 +50,7 @@ func TestExportGolden(t *testing.T) {
 	} {
 		t.Run(tc.golden, func(t *testing.T) {
 			var buf bytes.Buffer
-			if err := st.Export(&buf, tc.since); err != nil {
+			if err := st.Export(context.Background(), &buf, tc.since); err != nil {
 				t.Fatal(err)
 			}
 			// Every line is a JSON object (RFC 8259) on its own line.

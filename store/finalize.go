@@ -2,6 +2,7 @@ package store
 
 import (
 	"bytes"
+	"context"
 	"errors"
 	"fmt"
 	"time"
@@ -27,7 +28,7 @@ func defaultPolicy(name string) (merge.Policy, error) { return merge.New(name, m
 // a crash or restart can neither lose nor double-count an outcome. It
 // returns how many impressions it finalised. An impression whose policy
 // cannot be resolved stays open and the error is returned.
-func (s *Store) Finalize(now time.Time) (int, error) {
+func (s *Store) Finalize(ctx context.Context, now time.Time) (int, error) {
 	if s.opt.ReadOnly {
 		return 0, s.unwritable()
 	}
@@ -39,6 +40,9 @@ func (s *Store) Finalize(now time.Time) (int, error) {
 	}
 	total := 0
 	for {
+		if err := ctx.Err(); err != nil {
+			return total, fmt.Errorf("store %s: finalise: %w", s.path, err)
+		}
 		n, more, err := s.finalizeChunk(cutoff, rules, policies)
 		total += n
 		if err != nil || !more {

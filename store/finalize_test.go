@@ -1,6 +1,7 @@
 package store
 
 import (
+	"context"
 	"errors"
 	"math"
 	"testing"
@@ -93,17 +94,17 @@ func TestFinalizeOutcomes(t *testing.T) {
 			for i, e := range tc.events {
 				mustAdd(t, st, Event{Impression: im.ID, Item: e.item, Type: e.typ, Time: t0.Add(time.Duration(i+1) * time.Second)})
 			}
-			if n, err := st.Finalize(t0.Add(30*time.Minute - time.Nanosecond)); n != 0 || err != nil {
+			if n, err := st.Finalize(context.Background(), t0.Add(30*time.Minute-time.Nanosecond)); n != 0 || err != nil {
 				t.Fatalf("Finalize before the window closed = %d, %v; want 0, nil", n, err)
 			}
-			if n, err := st.Finalize(t0.Add(30 * time.Minute)); n != 1 || err != nil {
+			if n, err := st.Finalize(context.Background(), t0.Add(30*time.Minute)); n != 1 || err != nil {
 				t.Fatalf("Finalize when the window closed = %d, %v; want 1, nil", n, err)
 			}
 			got, _ := readRecord(t, st, im.ID)
 			if !got.Final || got.Outcome != tc.want || got.Score != tc.score {
 				t.Errorf("final %v, outcome %v, score %+v; want final, %v, %+v", got.Final, got.Outcome, got.Score, tc.want, tc.score)
 			}
-			agg, err := st.Aggregate("spring-refresh")
+			agg, err := st.Aggregate(context.Background(), "spring-refresh")
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -124,10 +125,10 @@ func TestFinalizeSkipsIncumbentOnly(t *testing.T) {
 	im.Policy, im.Fallback = "", "ramp"
 	recordAll(t, st, im)
 	mustAdd(t, st, Event{Impression: im.ID, Item: "a1", Type: "click", Time: t0.Add(time.Second)})
-	if n, err := st.Finalize(t0.Add(time.Hour)); n != 1 || err != nil {
+	if n, err := st.Finalize(context.Background(), t0.Add(time.Hour)); n != 1 || err != nil {
 		t.Fatalf("Finalize = %d, %v", n, err)
 	}
-	agg, err := st.Aggregate("spring-refresh")
+	agg, err := st.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -152,10 +153,10 @@ func TestAggregateUsersAndRecent(t *testing.T) {
 			mustAdd(t, st, Event{Impression: im.ID, Item: "b1", Type: "click", Time: im.Time.Add(time.Second)})
 		}
 	}
-	if _, err := st.Finalize(t0.Add(3 * time.Hour)); err != nil {
+	if _, err := st.Finalize(context.Background(), t0.Add(3*time.Hour)); err != nil {
 		t.Fatal(err)
 	}
-	agg, err := st.Aggregate("spring-refresh")
+	agg, err := st.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -180,7 +181,7 @@ func TestAggregateUsersAndRecent(t *testing.T) {
 	if !agg.Start.Equal(t0) || !agg.RecentEnd.Equal(t0.Add(89*time.Minute)) || agg.Policy != "team-draft" {
 		t.Errorf("start %v, end %v, policy %q", agg.Start, agg.RecentEnd, agg.Policy)
 	}
-	names, err := st.Experiments()
+	names, err := st.Experiments(context.Background())
 	if err != nil || len(names) != 1 || names[0] != "spring-refresh" {
 		t.Errorf("Experiments() = %v, %v", names, err)
 	}
@@ -196,7 +197,7 @@ func TestFinalizeSetsAsideUnknownPolicy(t *testing.T) {
 	good := teamDraftImpression(t0.Add(time.Second), 2, 0)
 	recordAll(t, st, bad, good)
 	mustAdd(t, st, Event{Impression: good.ID, Item: "b2", Type: "click", Time: t0.Add(2 * time.Second)})
-	n, err := st.Finalize(t0.Add(time.Hour))
+	n, err := st.Finalize(context.Background(), t0.Add(time.Hour))
 	if err == nil || !errors.Is(err, merge.ErrUnknownPolicy) {
 		t.Fatalf("Finalize error %v, want one naming the unknown policy", err)
 	}
@@ -209,10 +210,10 @@ func TestFinalizeSetsAsideUnknownPolicy(t *testing.T) {
 	if got, _ := readRecord(t, st, good.ID); !got.Final {
 		t.Error("the impression after the bad one was not finalised")
 	}
-	if agg, _ := st.Aggregate("spring-refresh"); agg.Outcomes != [4]int64{0, 0, 1, 0} {
+	if agg, _ := st.Aggregate(context.Background(), "spring-refresh"); agg.Outcomes != [4]int64{0, 0, 1, 0} {
 		t.Errorf("outcomes %v, want only the good impression's challenger win", agg.Outcomes)
 	}
-	if n, err := st.Finalize(t0.Add(2 * time.Hour)); n != 0 || err != nil {
+	if n, err := st.Finalize(context.Background(), t0.Add(2*time.Hour)); n != 0 || err != nil {
 		t.Errorf("second Finalize = %d, %v; want 0, nil (the bad one is set aside)", n, err)
 	}
 }
@@ -228,7 +229,7 @@ func TestBackgroundPassFinalisesAndRetains(t *testing.T) {
 	mustAdd(t, st, Event{Impression: im.ID, Item: "b2", Type: "click", Time: t0.Add(time.Second)})
 	c.Set(t0.Add(31 * time.Minute))
 	waitFor(t, "finalised", func() bool { r, _ := readRecord(t, st, im.ID); return r.Final })
-	if agg, _ := st.Aggregate("spring-refresh"); agg.Outcomes != [4]int64{0, 0, 1, 0} {
+	if agg, _ := st.Aggregate(context.Background(), "spring-refresh"); agg.Outcomes != [4]int64{0, 0, 1, 0} {
 		t.Errorf("outcomes %v, want one challenger win", agg.Outcomes)
 	}
 	c.Set(t0.Add(3 * time.Hour))

@@ -1,6 +1,7 @@
 package store
 
 import (
+	"context"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -37,7 +38,7 @@ func TestMetrics(t *testing.T) {
 		t.Error("Record of an impression without an experiment = true")
 	}
 	mustAdd(t, st, Event{Impression: fixedID(t0, 1), Item: "b1", Type: "click", Time: t0.Add(time.Second)})
-	if _, err := st.Finalize(t0.Add(time.Hour)); err != nil {
+	if _, err := st.Finalize(context.Background(), t0.Add(time.Hour)); err != nil {
 		t.Fatal(err)
 	}
 	expected := `

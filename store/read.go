@@ -1,6 +1,7 @@
 package store
 
 import (
+	"context"
 	"encoding/binary"
 	"fmt"
 	"io"
@@ -10,7 +11,10 @@ import (
 )
 
 // Experiments returns the names of every experiment in the store, sorted.
-func (s *Store) Experiments() ([]string, error) {
+func (s *Store) Experiments(ctx context.Context) ([]string, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, fmt.Errorf("store %s: list experiments: %w", s.path, err)
+	}
 	var names []string
 	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketExp).ForEachBucket(func(name []byte) error {
@@ -31,7 +35,10 @@ func (s *Store) Experiments() ([]string, error) {
 // the store has not seen yet gives an Aggregate of zero counts with a zero
 // Start, and no error, so a new sidecar can report before its first
 // impression.
-func (s *Store) Aggregate(experiment string) (Aggregate, error) {
+func (s *Store) Aggregate(ctx context.Context, experiment string) (Aggregate, error) {
+	if err := ctx.Err(); err != nil {
+		return Aggregate{}, fmt.Errorf("store %s: aggregate: %w", s.path, err)
+	}
 	a := Aggregate{Experiment: experiment, Users: map[uint64][4]int64{}}
 	err := s.view(func(tx *bolt.Tx) error {
 		b, _, _ := expBucket(tx, experiment, false)

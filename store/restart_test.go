@@ -1,6 +1,7 @@
 package store
 
 import (
+	"context"
 	"os"
 	"path/filepath"
 	"strings"
@@ -42,7 +43,7 @@ func TestRestartKeepsEventsAndCounts(t *testing.T) {
 	if countEvents(t, st, ims[0].ID) != 1 || countEvents(t, st, ims[1].ID) != 1 {
 		t.Fatal("acknowledged events missing after restart")
 	}
-	if n, err := st.Finalize(t0.Add(time.Hour)); n != 3 || err != nil {
+	if n, err := st.Finalize(context.Background(), t0.Add(time.Hour)); n != 3 || err != nil {
 		t.Fatalf("Finalize = %d, %v; want 3", n, err)
 	}
 	want := [4]int64{1, 1, 1, 0}
@@ -52,10 +53,10 @@ func TestRestartKeepsEventsAndCounts(t *testing.T) {
 
 	st, reg := open()
 	defer func() { st.Close(); checkFile(t, path) }()
-	if n, err := st.Finalize(t0.Add(2 * time.Hour)); n != 0 || err != nil {
+	if n, err := st.Finalize(context.Background(), t0.Add(2*time.Hour)); n != 0 || err != nil {
 		t.Errorf("second Finalize after restart = %d, %v; want 0", n, err)
 	}
-	agg, err := st.Aggregate("spring-refresh")
+	agg, err := st.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -105,10 +106,10 @@ func TestRetentionBoundsFile(t *testing.T) {
 		mustAdd(t, st, evs...)
 		now := start.Add(time.Hour)
 		c.Set(now)
-		if _, err := st.Finalize(now); err != nil {
+		if _, err := st.Finalize(context.Background(), now); err != nil {
 			t.Fatal(err)
 		}
-		if _, err := st.Retain(now); err != nil {
+		if _, err := st.Retain(context.Background(), now); err != nil {
 			t.Fatal(err)
 		}
 		fi, err := os.Stat(path)
@@ -117,7 +118,7 @@ func TestRetentionBoundsFile(t *testing.T) {
 		}
 		sizes = append(sizes, fi.Size())
 	}
-	agg, err := st.Aggregate("spring-refresh")
+	agg, err := st.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}

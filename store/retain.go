@@ -2,6 +2,7 @@ package store
 
 import (
 	"bytes"
+	"context"
 	"fmt"
 	"time"
 
@@ -14,7 +15,7 @@ import (
 // are reused by later commits, so under steady traffic the file stops
 // growing. Open impressions are left for Finalize. It returns how many
 // impressions it deleted; with zero Retention it deletes none.
-func (s *Store) Retain(now time.Time) (int, error) {
+func (s *Store) Retain(ctx context.Context, now time.Time) (int, error) {
 	if s.opt.ReadOnly {
 		return 0, s.unwritable()
 	}
@@ -35,6 +36,9 @@ func (s *Store) Retain(now time.Time) (int, error) {
 	var from []byte
 	total := 0
 	for {
+		if err := ctx.Err(); err != nil {
+			return total, fmt.Errorf("store %s: retention: %w", s.path, err)
+		}
 		var n int
 		err := s.db.Update(func(tx *bolt.Tx) error {
 			var err error

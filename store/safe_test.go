@@ -1,6 +1,7 @@
 package store
 
 import (
+	"context"
 	"errors"
 	"io"
 	"os"
@@ -100,16 +101,16 @@ func readAll(path string) error {
 		return err
 	}
 	defer st.Close()
-	names, err := st.Experiments()
+	names, err := st.Experiments(context.Background())
 	if err != nil {
 		return err
 	}
 	for _, n := range names {
-		if _, err := st.Aggregate(n); err != nil {
+		if _, err := st.Aggregate(context.Background(), n); err != nil {
 			return err
 		}
 	}
-	return st.Export(io.Discard, time.Time{})
+	return st.Export(context.Background(), io.Discard, time.Time{})
 }
 
 // TestParseIDIsStrict checks that each id has one text form: the last

@@ -241,10 +241,10 @@ func (s *Store) background(ctx context.Context) {
 		case <-t.C:
 		}
 		now := s.opt.Now()
-		if _, err := s.Finalize(now); err != nil {
+		if _, err := s.Finalize(ctx, now); err != nil && ctx.Err() == nil {
 			s.log.Error("store: finalise", "path", s.path, "err", err)
 		}
-		if _, err := s.Retain(now); err != nil {
+		if _, err := s.Retain(ctx, now); err != nil && ctx.Err() == nil {
 			s.log.Error("store: retention", "path", s.path, "err", err)
 		}
 	}

@@ -2,6 +2,7 @@ package store
 
 import (
 	"bytes"
+	"context"
 	"encoding/binary"
 	"errors"
 	"os"
@@ -235,7 +236,7 @@ func TestCloseDrainsQueue(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer ro.Close()
-	a, err := ro.Aggregate("spring-refresh")
+	a, err := ro.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -265,11 +266,11 @@ func TestSnapshotOpens(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer cp.Close()
-	got, err := cp.Aggregate("spring-refresh")
+	got, err := cp.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}
-	want, _ := st.Aggregate("spring-refresh")
+	want, _ := st.Aggregate(context.Background(), "spring-refresh")
 	if !reflect.DeepEqual(got, want) {
 		t.Errorf("snapshot aggregate %+v, live %+v", got, want)
 	}
@@ -339,7 +340,7 @@ func TestVerifyFindsProblems(t *testing.T) {
 
 func TestAggregateOfUnseenExperiment(t *testing.T) {
 	st, _ := openTest(t, testOptions(newClock(t0)))
-	a, err := st.Aggregate("autumn-bulbs")
+	a, err := st.Aggregate(context.Background(), "autumn-bulbs")
 	if err != nil || a.Experiment != "autumn-bulbs" || !a.Start.IsZero() || a.Impressions != 0 || a.Users == nil {
 		t.Errorf("Aggregate of an unseen experiment = %+v, %v; want zero counts, zero start, no error", a, err)
 	}

@@ -113,7 +113,7 @@ func printTeamClicks(w io.Writer, path string) error {
 	}
 	defer st.Close()
 	pr, pw := io.Pipe()
-	go func() { pw.CloseWithError(st.Export(pw, time.Time{})) }()
+	go func() { pw.CloseWithError(st.Export(context.Background(), pw, time.Time{})) }()
 	clicks := map[string]map[string]int{}
 	dec := json.NewDecoder(pr)
 	for {

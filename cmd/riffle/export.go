@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"riffle/store"
+	"riffle/store/open"
 )
 
 // runExport writes every impression of a store file, with its slots,
@@ -46,13 +47,13 @@ func runExport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		fmt.Fprintf(stderr, "riffle export: --since: %v\n", err)
 		return 2
 	}
-	st, err := store.Open(*path, &store.Options{ReadOnly: true, Timeout: *timeout})
+	st, err := open.ReadOnly(ctx, *path, open.Options{Store: store.Options{Timeout: *timeout}})
 	if err != nil {
 		fmt.Fprintf(stderr, "riffle export: %v\n", err)
 		return 1
 	}
 	defer st.Close()
-	if err := st.Export(stdout, from); err != nil {
+	if err := st.Export(ctx, stdout, from); err != nil {
 		fmt.Fprintf(stderr, "riffle export: %v\n", err)
 		return 1
 	}

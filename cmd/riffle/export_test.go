@@ -2,6 +2,7 @@ package main
 
 import (
 	"bufio"
+	"context"
 	"encoding/json"
 	"path/filepath"
 	"strings"
@@ -40,7 +41,7 @@ func writeExportStore(t *testing.T, n int) string {
 			t.Fatalf("event %d: %v", i, err)
 		}
 	}
-	if _, err := st.Finalize(exportEpoch.Add(time.Duration(n/2-1)*time.Minute + 30*time.Minute)); err != nil {
+	if _, err := st.Finalize(context.Background(), exportEpoch.Add(time.Duration(n/2-1)*time.Minute+30*time.Minute)); err != nil {
 		t.Fatal(err)
 	}
 	if err := st.Close(); err != nil {

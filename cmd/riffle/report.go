@@ -14,6 +14,7 @@ import (
 	"riffle/merge/verdict"
 	"riffle/proxy/config"
 	"riffle/store"
+	"riffle/store/open"
 )
 
 // reportFlags are riffle report's settings.
@@ -57,7 +58,7 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		fmt.Fprintf(stderr, "riffle report: %v\n", err)
 		return 1
 	}
-	st, err := verdict.Compute(verdict.FromAggregate(agg, f.Params))
+	st, err := verdict.Compute(agg.Input(f.Params))
 	if err != nil {
 		fmt.Fprintf(stderr, "riffle report: experiment %q: %v\n", agg.Experiment, err)
 		return 1
@@ -129,9 +130,9 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 // mergeStores opens every store read-only, picks the experiment and adds
 // up its aggregates over the stores that hold it.
 func mergeStores(ctx context.Context, paths []string, experiment string, timeout time.Duration) (store.Aggregate, error) {
-	var open []*store.Store
+	var opened []store.ReadCloser
 	defer func() {
-		for _, s := range open {
+		for _, s := range opened {
 			_ = s.Close()
 		}
 	}()
@@ -141,15 +142,15 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 		if err := ctx.Err(); err != nil {
 			return store.Aggregate{}, err
 		}
-		s, err := store.Open(p, &store.Options{ReadOnly: true, Timeout: timeout})
+		s, err := open.ReadOnly(ctx, p, open.Options{Store: store.Options{Timeout: timeout}})
 		if err != nil {
 			return store.Aggregate{}, openProblem(p, timeout, err)
 		}
-		open = append(open, s)
+		opened = append(opened, s)
 		if err := notCopy(s, p, seen); err != nil {
 			return store.Aggregate{}, err
 		}
-		names, err := s.Experiments()
+		names, err := s.Experiments(ctx)
 		if err != nil {
 			return store.Aggregate{}, fmt.Errorf("%s: %w", p, err)
 		}
@@ -163,11 +164,11 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 	}
 	var total store.Aggregate
 	first := true
-	for i, s := range open {
+	for i, s := range opened {
 		if !slices.Contains(held[name], paths[i]) {
 			continue
 		}
-		a, err := s.Aggregate(name)
+		a, err := s.Aggregate(ctx, name)
 		if err != nil {
 			return store.Aggregate{}, fmt.Errorf("%s: experiment %q: %w", paths[i], name, err)
 		}
@@ -207,7 +208,7 @@ func paramsFromConfig(f *reportFlags, fs *flag.FlagSet, path string) error {
 // notCopy refuses a store that is a copy of one already given (the same
 // file twice, or two snapshots of one sidecar), which would count its
 // impressions twice.
-func notCopy(s *store.Store, path string, seen map[string]string) error {
+func notCopy(s store.Reader, path string, seen map[string]string) error {
 	id, err := s.Instance()
 	if err != nil {
 		return fmt.Errorf("%s: %w", path, err)

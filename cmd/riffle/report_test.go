@@ -112,7 +112,7 @@ func writeStore(tb testing.TB, path string, imps []planned) {
 		tb.Fatal(err)
 	}
 	addEvents(tb, st, events)
-	if _, err := st.Finalize(last.Add(time.Hour)); err != nil {
+	if _, err := st.Finalize(context.Background(), last.Add(time.Hour)); err != nil {
 		tb.Fatal(err)
 	}
 	if err := st.Close(); err != nil {

@@ -143,7 +143,7 @@ func TestServeEndToEnd(t *testing.T) {
 	}
 	defer st.Close()
 	var out bytes.Buffer
-	if err := st.Export(&out, time.Time{}); err != nil {
+	if err := st.Export(context.Background(), &out, time.Time{}); err != nil {
 		t.Fatal(err)
 	}
 	if !strings.Contains(out.String(), imp) || strings.Count(out.String(), `"event":"`) != 2 {

@@ -7,7 +7,6 @@ import (
 	"time"
 
 	"riffle/merge"
-	"riffle/store"
 )
 
 // Params are an experiment's statistical settings. A zero field means its
@@ -45,7 +44,9 @@ func (p Params) withDefaults() (Params, error) {
 	return p, nil
 }
 
-// Input is what Compute needs of one experiment.
+// Input is what Compute needs of one experiment: counts and per-user
+// sums, whichever store they come from (store.Aggregate.Input fills it), so
+// the statistics depend on no storage.
 type Input struct {
 	// Experiment and Policy are copied to the Status.
 	Experiment, Policy string
@@ -68,23 +69,6 @@ type Input struct {
 	RecentSpan                            time.Duration
 	// Params are the statistical settings.
 	Params Params
-}
-
-// FromAggregate returns the Input for a store aggregate under p. Ramp is
-// left nil: the store does not know the ramp in force.
-func FromAggregate(a store.Aggregate, p Params) Input {
-	return Input{
-		Experiment:         a.Experiment,
-		Policy:             a.Policy,
-		Impressions:        a.Impressions,
-		Interleaved:        a.Interleaved,
-		Outcomes:           a.Outcomes,
-		Users:              a.Users,
-		RecentImpressions:  a.RecentImpressions,
-		RecentWithFeedback: a.RecentWithFeedback,
-		RecentSpan:         a.RecentSpan,
-		Params:             p,
-	}
 }
 
 // check validates the counts.

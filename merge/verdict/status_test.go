@@ -10,7 +10,6 @@ import (
 	"time"
 
 	"riffle/merge"
-	"riffle/store"
 )
 
 // outcomes builds Outcomes from none, incumbent, challenger and tie counts.
@@ -203,17 +202,6 @@ func TestComputeBadInput(t *testing.T) {
 		if _, err := Compute(in); !errors.Is(err, ErrInput) {
 			t.Errorf("%s: error = %v, want ErrInput", name, err)
 		}
-	}
-}
-
-func TestFromAggregate(t *testing.T) {
-	a := store.Aggregate{Experiment: "spring-refresh", Policy: "balanced", Impressions: 10, Interleaved: 8,
-		Outcomes: outcomes(2, 3, 2, 1), Users: map[uint64][4]int64{4: outcomes(2, 3, 2, 1)},
-		RecentImpressions: 8, RecentWithFeedback: 6, RecentSpan: time.Minute}
-	in := FromAggregate(a, Params{Margin: 0.01})
-	if in.Experiment != a.Experiment || in.Policy != a.Policy || in.Outcomes != a.Outcomes || in.Users[4] != a.Users[4] ||
-		in.RecentImpressions != 8 || in.RecentWithFeedback != 6 || in.RecentSpan != time.Minute || in.Params.Margin != 0.01 || in.Ramp != nil {
-		t.Errorf("FromAggregate(%+v) = %+v", a, in)
 	}
 }
 

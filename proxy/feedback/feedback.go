@@ -165,6 +165,9 @@ func (h *handler) record(ctx context.Context, lines []line) (*Response, int) {
 			}
 			logged = true
 			resp.Error = "events could not be stored; retry: " + err.Error()
+			if errors.Is(err, store.ErrUnavailable) {
+				resp.Error = "store unavailable: no event of this request was recorded; retry after the Retry-After delay: " + err.Error()
+			}
 			resp.Rejected = append(resp.Rejected, Rejection{Line: lines[at[j]].n, Error: err.Error()})
 		default:
 			h.m.rejected(reason, 1)

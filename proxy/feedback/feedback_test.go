@@ -1,6 +1,7 @@
 package feedback
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -183,7 +184,7 @@ func TestRejectReasons(t *testing.T) {
 				if err := f.st.Flush(t.Context()); err != nil {
 					t.Fatal(err)
 				}
-				if n, err := f.st.Finalize(t0.Add(time.Hour)); n != 1 || err != nil {
+				if n, err := f.st.Finalize(context.Background(), t0.Add(time.Hour)); n != 1 || err != nil {
 					t.Fatalf("Finalize = %d, %v", n, err)
 				}
 			}},
@@ -219,10 +220,10 @@ func TestReplayIsIdempotent(t *testing.T) {
 	if status != http.StatusAccepted || r.Accepted != 0 || r.Duplicates != 3 || len(r.Rejected) != 0 {
 		t.Fatalf("replay: %d %+v; want 202, 0 accepted, 3 duplicates", status, r)
 	}
-	if _, err := f.st.Finalize(t0.Add(time.Hour)); err != nil {
+	if _, err := f.st.Finalize(context.Background(), t0.Add(time.Hour)); err != nil {
 		t.Fatal(err)
 	}
-	agg, err := f.st.Aggregate("spring-refresh")
+	agg, err := f.st.Aggregate(context.Background(), "spring-refresh")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -233,7 +234,7 @@ func TestReplayIsIdempotent(t *testing.T) {
 		t.Errorf("outcomes %v, want [0 0 1 0]", agg.Outcomes)
 	}
 	var buf strings.Builder
-	if err := f.st.Export(&buf, time.Time{}); err != nil {
+	if err := f.st.Export(context.Background(), &buf, time.Time{}); err != nil {
 		t.Fatal(err)
 	}
 	if n := strings.Count(buf.String(), `"event":`); n != 3 {
@@ -303,5 +304,36 @@ func TestMetricsLint(t *testing.T) {
 	}
 	if got := f.value("riffle_feedback_events_accepted_total", "click"); got != 1 {
 		t.Errorf("accepted{event=click} = %v after a rebuild, want 1", got)
+	}
+}
+
+// downStore answers every event as a store whose database is down would.
+type downStore struct{}
+
+func (downStore) AddEvents(_ context.Context, evs []store.Event) []error {
+	errs := make([]error, len(evs))
+	for i := range errs {
+		errs[i] = fmt.Errorf("store postgres: add events: %w", store.ErrUnavailable)
+	}
+	return errs
+}
+
+func TestUnavailableIs503WithReason(t *testing.T) {
+	srv := httptest.NewServer(New(downStore{}, Options{Logger: slog.New(slog.DiscardHandler)}))
+	defer srv.Close()
+	id := store.NewID(t0).String()
+	resp, err := http.Post(srv.URL, "application/x-ndjson", strings.NewReader(`{"impression":"`+id+`","item":"rake","event":"click"}`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer resp.Body.Close()
+	var r Response
+	if err := json.NewDecoder(resp.Body).Decode(&r); err != nil {
+		t.Fatal(err)
+	}
+	if resp.StatusCode != http.StatusServiceUnavailable || resp.Header.Get("Retry-After") == "" ||
+		r.Accepted != 0 || !strings.Contains(r.Error, "store unavailable") {
+		t.Errorf("database down: %d, Retry-After %q, %+v; want 503, Retry-After, accepted 0, an error saying the store is unavailable",
+			resp.StatusCode, resp.Header.Get("Retry-After"), r)
 	}
 }

@@ -30,12 +30,16 @@ type GuardrailState struct {
 	guard.Trip
 }
 
+// readTimeout bounds one read of the experiment's counts, so that a slow
+// database cannot hold up the API, the status page or a scrape.
+const readTimeout = 2 * time.Second
+
 // experiment computes the live status from the store, caches it briefly
 // (a dashboard polling every second must not rescan the per-user
 // aggregates each time), samples it into the status page's history and
 // sets the live Delta gauges.
 type experiment struct {
-	store   *store.Store
+	store   store.Reader
 	history *status.History
 	current func() *config.Config
 	ramp    func() float64
@@ -46,7 +50,7 @@ type experiment struct {
 	at     time.Time
 }
 
-func newExperiment(st *store.Store, reg prometheus.Registerer) *experiment {
+func newExperiment(st store.Reader, reg prometheus.Registerer) *experiment {
 	e := &experiment{store: st, history: status.NewHistory(0)}
 	reg.MustRegister(deltaCollector{e: e,
 		delta: prometheus.NewDesc("riffle_experiment_delta", "Preference statistic Delta of the challenger over the incumbent on finalised impressions.", []string{"experiment"}, nil),
@@ -94,7 +98,9 @@ func (e *experiment) status() (Status, error) {
 		return e.cached, nil
 	}
 	cfg := e.current()
-	agg, err := e.store.Aggregate(cfg.Experiment.Name)
+	ctx, cancel := context.WithTimeout(context.Background(), readTimeout)
+	defer cancel()
+	agg, err := e.store.Aggregate(ctx, cfg.Experiment.Name)
 	if err != nil {
 		return Status{}, fmt.Errorf("experiment %s: %w", cfg.Experiment.Name, err)
 	}
@@ -104,7 +110,7 @@ func (e *experiment) status() (Status, error) {
 	if agg.Policy == "" {
 		agg.Policy = cfg.Experiment.Policy
 	}
-	in := verdict.FromAggregate(agg, paramsOf(cfg))
+	in := agg.Input(paramsOf(cfg))
 	ramp := e.ramp()
 	in.Ramp = &ramp
 	vs, err := verdict.Compute(in)
@@ -193,11 +199,13 @@ func guardOptions(cfg *config.Config, s *Sidecar) guard.Options {
 // experimentStart is when the ramp schedule counts from: the config's
 // experiment.start, else the first time the store saw the experiment, else
 // now.
-func experimentStart(st *store.Store, cfg *config.Config, now time.Time) time.Time {
+func experimentStart(st store.Reader, cfg *config.Config, now time.Time) time.Time {
 	if !cfg.Experiment.Start.IsZero() {
 		return cfg.Experiment.Start
 	}
-	if agg, err := st.Aggregate(cfg.Experiment.Name); err == nil && !agg.Start.IsZero() {
+	ctx, cancel := context.WithTimeout(context.Background(), readTimeout)
+	defer cancel()
+	if agg, err := st.Aggregate(ctx, cfg.Experiment.Name); err == nil && !agg.Start.IsZero() {
 		return agg.Start
 	}
 	return now

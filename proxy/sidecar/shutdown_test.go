@@ -257,7 +257,7 @@ func checkStoreAfterShutdown(t *testing.T, path string, l *load) {
 	}
 	defer st.Close()
 	var buf bytes.Buffer
-	if err := st.Export(&buf, time.Time{}); err != nil {
+	if err := st.Export(context.Background(), &buf, time.Time{}); err != nil {
 		t.Fatalf("export: %v", err)
 	}
 	events := map[string]map[string]bool{} // impression -> "item event" -> seen

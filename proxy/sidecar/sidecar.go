@@ -32,6 +32,7 @@ import (
 	"riffle/proxy/guard"
 	"riffle/proxy/status"
 	"riffle/store"
+	"riffle/store/open"
 )
 
 // Sidecar is one running riffle.
@@ -39,7 +40,7 @@ type Sidecar struct {
 	log      *slog.Logger
 	reg      *prometheus.Registry
 	reloader *config.Reloader
-	store    *store.Store
+	store    store.Contract
 	proxy    *proxy.Server
 	guard    *guard.Guard
 	exp      *experiment
@@ -74,10 +75,10 @@ func Serve(ctx context.Context, path string, logw io.Writer) error {
 func Start(path string, cfg *config.Config, log *slog.Logger) (*Sidecar, error) {
 	s := &Sidecar{log: log, reg: prometheus.NewRegistry()}
 	s.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
-	st, err := store.Open(cfg.Store, &store.Options{
+	st, err := open.Live(context.Background(), cfg.Store, open.Options{Store: store.Options{
 		QueueSize: cfg.Queue.Size, Batch: cfg.Queue.Batch, Interval: cfg.Queue.Interval,
 		Rules: rulesOf(cfg), Retention: cfg.StoreRetention, Registerer: s.reg, Logger: log,
-	})
+	}})
 	if err != nil {
 		return nil, fmt.Errorf("sidecar: %w", err)
 	}
@@ -237,7 +238,7 @@ func (s *Sidecar) adminHandler(cfg *config.Config) http.Handler {
 		Config:      s.configStatus,
 		Reloader:    s.reloader,
 		Guardrails:  s.guard,
-		Snapshot:    s.store,
+		Snapshot:    snapshotter(s.store),
 		Status:      http.StripPrefix("/status", status.Handler(s.exp.history)),
 		Logger:      s.log,
 	})
@@ -266,4 +267,13 @@ func (s *Sidecar) configStatus() admin.ConfigStatus {
 		Hash: st.Hash, LoadedAt: st.LoadedAt, LastError: st.LastError, LastAttempt: st.LastAttempt,
 		Problems: st.Problems, Config: s.reloader.Current(),
 	}
+}
+
+// snapshotter is the store's snapshot endpoint when it has one (a bbolt
+// file); a shared database's copies are its own backups.
+func snapshotter(st store.Contract) admin.Snapshotter {
+	if sn, ok := st.(admin.Snapshotter); ok {
+		return sn
+	}
+	return nil
 }
