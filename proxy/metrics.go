@@ -42,7 +42,7 @@ func newMetrics(s *Server) *metrics {
 	return &metrics{
 		requests: prometheus.NewCounterVec(prometheus.CounterOpts{
 			Name: "riffle_proxy_requests_total",
-			Help: "Requests on configured routes by how they ended: interleaved, incumbent_only, challenger_only or failed, and why.",
+			Help: "Requests on configured routes by how they ended: interleaved, incumbent-only, challenger-only or failed, and why.",
 		}, []string{"route", "outcome", "reason"}),
 		duration: prometheus.NewHistogramVec(prometheus.HistogramOpts{
 			Name:    "riffle_proxy_request_duration_seconds",

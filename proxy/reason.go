@@ -17,7 +17,7 @@ const (
 )
 
 func (o outcome) String() string {
-	return [numOutcomes]string{"interleaved", "incumbent_only", "challenger_only", "failed"}[o]
+	return [numOutcomes]string{"interleaved", "incumbent-only", "challenger-only", "failed"}[o]
 }
 
 // reason says why a request was not interleaved. Its text is the

@@ -144,9 +144,9 @@ riffle_proxy_dropped_elements_total{backend="incumbent"} 0
 		want   int
 	}{
 		{[]string{"/v1/recommend", "interleaved", "none"}, interleaved},
-		{[]string{"/v1/recommend", "incumbent_only", "ramp"}, outside},
+		{[]string{"/v1/recommend", "incumbent-only", "ramp"}, outside},
 		{[]string{"/v1/recommend", "failed", "request-too-large"}, 1},
-		{[]string{"/v1/recommend", "incumbent_only", "challenger-timeout"}, 0},
+		{[]string{"/v1/recommend", "incumbent-only", "challenger-timeout"}, 0},
 	} {
 		if got := testutil.ToFloat64(h.srv.m.requests.WithLabelValues(c.labels...)); got != float64(c.want) {
 			t.Errorf("riffle_proxy_requests_total%v = %v, want %d", c.labels, got, c.want)

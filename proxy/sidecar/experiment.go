@@ -44,6 +44,7 @@ type experiment struct {
 	current func() *config.Config
 	ramp    func() float64
 	guard   *guard.Guard
+	page    *statusPage
 
 	mu     sync.Mutex
 	cached Status
@@ -152,14 +153,7 @@ func (e *experiment) record() {
 	if err != nil {
 		return
 	}
-	p := status.Point{Time: time.Now(), Delta: st.Delta, Verdict: string(st.Verdict), N: st.WithFeedback}
-	if len(st.CI) == 2 {
-		p.Lo, p.Hi = st.CI[0], st.CI[1]
-	}
-	if st.Ramp != nil {
-		p.Ramp = *st.Ramp
-	}
-	e.history.Add(p)
+	e.history.Add(e.page.point(st, time.Now()))
 }
 
 // rulesOf are the store's attribution rules from a config.

@@ -103,8 +103,8 @@ func checkTripped(t *testing.T, r *running) {
 		{"riffle_guardrail_trips_total", labels{"guardrail": "error-rate"}, 1},
 		{"riffle_experiment_ramp_ratio", labels{"experiment": "spring-refresh"}, 0},
 		{"riffle_proxy_requests_total", labels{"outcome": "interleaved"}, 10},
-		{"riffle_proxy_requests_total", labels{"outcome": "incumbent_only", "reason": "challenger-status"}, 10},
-		{"riffle_proxy_requests_total", labels{"outcome": "incumbent_only", "reason": "guardrail"}, 10},
+		{"riffle_proxy_requests_total", labels{"outcome": "incumbent-only", "reason": "challenger-status"}, 10},
+		{"riffle_proxy_requests_total", labels{"outcome": "incumbent-only", "reason": "guardrail"}, 10},
 		{"riffle_backend_errors_total", labels{"backend": "challenger", "kind": "status"}, 10},
 	})
 }

@@ -98,7 +98,7 @@ func trafficWants(hash string, clicks, purchases float64, outcomes map[string]fl
 	route := labels{"route": "/v1/recommend"}
 	return []metricCheck{
 		{"riffle_proxy_requests_total", labels{"route": "/v1/recommend", "outcome": "interleaved", "reason": "none"}, 20},
-		{"riffle_proxy_requests_total", labels{"route": "/v1/recommend", "outcome": "incumbent_only", "reason": "challenger-status"}, 4},
+		{"riffle_proxy_requests_total", labels{"route": "/v1/recommend", "outcome": "incumbent-only", "reason": "challenger-status"}, 4},
 		{"riffle_proxy_requests_total", route, 24},
 		{"riffle_proxy_request_duration_seconds", route, 24},
 		{"riffle_backend_request_duration_seconds", labels{"backend": "incumbent"}, 24},

@@ -112,6 +112,7 @@ func (s *Sidecar) build(path string, cfg *config.Config) error {
 	s.exp.current = s.reloader.Current
 	s.exp.ramp = func() float64 { return s.guard.Ramp(time.Now()) }
 	s.exp.guard = s.guard
+	s.exp.page = &statusPage{meter: status.NewMeter(s.reg), store: s.store, current: s.reloader.Current}
 	return nil
 }
 
@@ -239,7 +240,7 @@ func (s *Sidecar) adminHandler(cfg *config.Config) http.Handler {
 		Reloader:    s.reloader,
 		Guardrails:  s.guard,
 		Snapshot:    snapshotter(s.store),
-		Status:      http.StripPrefix("/status", status.Handler(s.exp.history)),
+		Status:      http.StripPrefix("/status", status.Handler(status.Options{History: s.exp.history, Live: s.exp.page.live})),
 		Logger:      s.log,
 	})
 }
