@@ -33,10 +33,22 @@ type probe struct {
 	} `yaml:"httpGet"`
 }
 
+type envVar struct {
+	Name      string `yaml:"name"`
+	Value     string `yaml:"value"`
+	ValueFrom *struct {
+		SecretKeyRef *struct {
+			Name string `yaml:"name"`
+			Key  string `yaml:"key"`
+		} `yaml:"secretKeyRef"`
+	} `yaml:"valueFrom"`
+}
+
 type container struct {
 	Name           string   `yaml:"name"`
 	Image          string   `yaml:"image"`
 	Args           []string `yaml:"args"`
+	Env            []envVar `yaml:"env"`
 	Ports          []port   `yaml:"ports"`
 	LivenessProbe  *probe   `yaml:"livenessProbe"`
 	ReadinessProbe *probe   `yaml:"readinessProbe"`
@@ -58,6 +70,7 @@ type object struct {
 	Data       map[string]string `yaml:"data"`
 	StringData map[string]string `yaml:"stringData"`
 	Spec       struct {
+		Replicas int `yaml:"replicas"`
 		Template struct {
 			Spec struct {
 				TerminationGracePeriodSeconds int         `yaml:"terminationGracePeriodSeconds"`
@@ -76,10 +89,18 @@ type object struct {
 	} `yaml:"spec"`
 }
 
-// readManifest decodes every document of the sidecar manifest by kind.
-func readManifest(t *testing.T) map[string]object {
+// The manifests under kubernetes/: one pod with its own bbolt file, and a
+// fleet on a shared PostgreSQL database.
+const (
+	sidecarManifest = "riffle-sidecar.yaml"
+	fleetManifest   = "riffle-fleet.yaml"
+)
+
+// readManifest decodes every document of a manifest under kubernetes/ by
+// kind; a kind that appears twice (two Secrets) is keyed kind/name too.
+func readManifest(t *testing.T, file string) map[string]object {
 	t.Helper()
-	b, err := os.ReadFile(filepath.Join("kubernetes", "riffle-sidecar.yaml"))
+	b, err := os.ReadFile(filepath.Join("kubernetes", file))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -92,16 +113,19 @@ func readManifest(t *testing.T) map[string]object {
 			break
 		}
 		if err != nil {
-			t.Fatalf("riffle-sidecar.yaml: %v", err)
+			t.Fatalf("%s: %v", file, err)
 		}
 		if o.Kind == "" {
-			t.Fatalf("riffle-sidecar.yaml: a document without a kind")
+			t.Fatalf("%s: a document without a kind", file)
 		}
-		objs[o.Kind] = o
+		if _, dup := objs[o.Kind]; !dup {
+			objs[o.Kind] = o
+		}
+		objs[o.Kind+"/"+o.Metadata.Name] = o
 	}
 	for _, kind := range []string{"ConfigMap", "Secret", "Deployment", "Service", "NetworkPolicy"} {
 		if _, ok := objs[kind]; !ok {
-			t.Errorf("riffle-sidecar.yaml has no %s", kind)
+			t.Errorf("%s has no %s", file, kind)
 		}
 	}
 	return objs
@@ -194,9 +218,9 @@ type pod struct {
 	raw       string
 }
 
-func readPod(t *testing.T) pod {
+func readPod(t *testing.T, file string) pod {
 	t.Helper()
-	p := pod{objs: readManifest(t)}
+	p := pod{objs: readManifest(t, file)}
 	p.dep = p.objs["Deployment"]
 	p.rf = findContainer(t, p.dep, "riffle")
 	p.model = findContainer(t, p.dep, "prediction-service")
@@ -211,10 +235,15 @@ func readPod(t *testing.T) pod {
 	return p
 }
 
-// TestSidecarPodPorts checks the pod's ports, probes and requests, and
+// TestPodPorts checks each manifest's ports, probes and requests, and
 // that the Service sends clients through riffle.
-func TestSidecarPodPorts(t *testing.T) {
-	p := readPod(t)
+func TestPodPorts(t *testing.T) {
+	for _, file := range []string{sidecarManifest, fleetManifest} {
+		t.Run(file, func(t *testing.T) { checkPodPorts(t, readPod(t, file)) })
+	}
+}
+
+func checkPodPorts(t *testing.T, p pod) {
 	for _, c := range p.dep.Spec.Template.Spec.Containers {
 		for _, pt := range c.Ports {
 			if !validPortName(pt.Name) {
@@ -250,23 +279,31 @@ func TestSidecarPodPorts(t *testing.T) {
 	}
 }
 
-// TestSidecarConfigAndVolumes checks that riffle reads the ConfigMap's
-// file, keeps its store and finds its token on the mounted volumes, that
-// the pod outlives its shutdown grace, and that riffle accepts the file.
+// TestSidecarConfigAndVolumes checks that riffle keeps its store on the
+// mounted store volume, and the parts both manifests share.
 func TestSidecarConfigAndVolumes(t *testing.T) {
-	p := readPod(t)
+	p := readPod(t, sidecarManifest)
+	if !strings.HasPrefix(p.cfg.Store, mountOf(t, p.rf, "store")+"/") {
+		t.Errorf("store %s is not on the store volume", p.cfg.Store)
+	}
+	checkConfigAndToken(t, sidecarManifest, p)
+}
+
+// checkConfigAndToken checks that riffle reads the ConfigMap's file and
+// finds its token in the mounted Secret, that the pod outlives its
+// shutdown grace, and that riffle accepts the file.
+func checkConfigAndToken(t *testing.T, file string, p pod) {
+	t.Helper()
 	want := []string{"serve", "--config", path.Join(mountOf(t, p.rf, "config"), "riffle.yaml")}
 	if strings.Join(p.rf.Args, " ") != strings.Join(want, " ") {
 		t.Errorf("riffle args %q, want %q", p.rf.Args, want)
-	}
-	if !strings.HasPrefix(p.cfg.Store, mountOf(t, p.rf, "store")+"/") {
-		t.Errorf("store %s is not on the store volume", p.cfg.Store)
 	}
 	secretDir := mountOf(t, p.rf, "admin-token")
 	if path.Dir(p.cfg.AdminTokenFile) != secretDir {
 		t.Errorf("admin_token_file %s is not in the Secret's mount %s", p.cfg.AdminTokenFile, secretDir)
 	}
-	if _, ok := p.objs["Secret"].StringData[path.Base(p.cfg.AdminTokenFile)]; !ok {
+	secret := p.objs["Secret/"+secretOfVolume(t, p, "admin-token")]
+	if _, ok := secret.StringData[path.Base(p.cfg.AdminTokenFile)]; !ok {
 		t.Errorf("the Secret has no key %s for admin_token_file", path.Base(p.cfg.AdminTokenFile))
 	}
 	if grace := p.dep.Spec.Template.Spec.TerminationGracePeriodSeconds; float64(grace) <= p.cfg.ShutdownGrace.Seconds() {
@@ -275,15 +312,30 @@ func TestSidecarConfigAndVolumes(t *testing.T) {
 	if p.cfg.Experiment.Name == "" || len(p.cfg.Routes) == 0 {
 		t.Error("the ConfigMap's riffle.yaml names no experiment or route")
 	}
-	validateWithRiffle(t, p.raw)
+	validateWithRiffle(t, file, p.raw)
+}
+
+// secretOfVolume returns the name of the Secret that the pod's volume
+// mounts, failing when the volume is not a Secret.
+func secretOfVolume(t *testing.T, p pod, volume string) string {
+	t.Helper()
+	for _, v := range p.dep.Spec.Template.Spec.Volumes {
+		if v.Name == volume {
+			if name, ok := v.Secret["secretName"].(string); ok {
+				return name
+			}
+		}
+	}
+	t.Fatalf("the pod has no volume %s from a Secret", volume)
+	return ""
 }
 
 // validateWithRiffle runs riffle's own config validation on the ConfigMap's
 // file. The token file it names lives in the pod's Secret mount, not here,
 // so the one problem allowed is that admin_token_file cannot be read.
-func validateWithRiffle(t *testing.T, raw string) {
+func validateWithRiffle(t *testing.T, file, raw string) {
 	t.Helper()
-	_, err := config.Parse([]byte(raw), "riffle-sidecar.yaml ConfigMap riffle.yaml")
+	_, err := config.Parse([]byte(raw), file+" ConfigMap riffle.yaml")
 	if err == nil {
 		return
 	}
