@@ -85,9 +85,25 @@ func fullRank(idx []int32, r int32) int32 {
 
 // capChallenger appends mid to dst, replacing challenger-team slots past
 // limit (0 = none) with the incumbent's best items not yet shown. xa marks
-// the incumbent's items already shown as taken; for the others it still
+// the incumbent's items in dst or mid as taken; for the others it still
 // holds their rank in b.
+//
+// A challenger slot past the cap is not shown, so an incumbent item it held
+// is released first: otherwise it would count as shown and, with every
+// other incumbent item placed, its slot would vanish instead of coming back
+// as the incumbent's.
 func capChallenger(dst, mid []Slot, a []string, xa []int32, limit int) []Slot {
+	if limit > 0 {
+		seen := 0
+		for _, s := range mid {
+			if s.Team != Challenger {
+				continue
+			}
+			if seen++; seen > limit && s.RankA > 0 {
+				xa[s.RankA-1] = s.RankB
+			}
+		}
+	}
 	seen, ia := 0, 0
 	for _, s := range mid {
 		if s.Team == Challenger && limit > 0 {

@@ -61,10 +61,16 @@ func checkHedged(t *testing.T, p Policy, got []Slot, a, b []string, n int, seed 
 			return slices.DeleteFunc(slices.Clone(l), func(s string) bool { return shown[s] })
 		}
 		mid := p.Interleave(nil, rest(a), rest(b), n-f, seed)
-		for _, s := range mid {
+		seen := 0
+		for _, s := range mid { // a challenger slot past the cap is not shown
+			if s.Team == Challenger && h.MaxChallengerSlots > 0 {
+				if seen++; seen > h.MaxChallengerSlots {
+					continue
+				}
+			}
 			shown[s.Item] = true
 		}
-		seen := 0
+		seen = 0
 		for _, s := range mid {
 			s.RankA, s.RankB = rank1(a, s.Item), rank1(b, s.Item)
 			if s.Team == Challenger && h.MaxChallengerSlots > 0 {
