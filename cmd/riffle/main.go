@@ -11,6 +11,8 @@ import (
 	"os"
 	"os/signal"
 	"syscall"
+
+	"riffle/cmd/riffle/internal/hangup"
 )
 
 // command is one subcommand: it parses its own flags from args.
@@ -32,10 +34,33 @@ func commands() map[string]command {
 }
 
 func main() {
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	// SIGHUP was subscribed while the process initialised (package
+	// hangup); serve reloads on it, the other commands keep its default.
+	ctx := context.Background()
+	if len(os.Args) > 1 && os.Args[1] == "serve" {
+		ctx = withHangups(ctx, hangup.Signals())
+	} else {
+		hangup.Release()
+	}
+	ctx, stop := signal.NotifyContext(ctx, os.Interrupt, syscall.SIGTERM)
 	code := run(ctx, os.Args[1:], os.Stdout, os.Stderr)
 	stop()
 	os.Exit(code)
+}
+
+// hangupsKey is the context key under which main passes the SIGHUP channel
+// it subscribed before anything else.
+type hangupsKey struct{}
+
+// withHangups returns ctx carrying hup for runServe.
+func withHangups(ctx context.Context, hup <-chan os.Signal) context.Context {
+	return context.WithValue(ctx, hangupsKey{}, hup)
+}
+
+// hangups returns the SIGHUP channel main subscribed, or nil.
+func hangups(ctx context.Context) <-chan os.Signal {
+	hup, _ := ctx.Value(hangupsKey{}).(<-chan os.Signal)
+	return hup
 }
 
 // run dispatches to a subcommand and returns the process exit code.

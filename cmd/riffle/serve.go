@@ -27,7 +27,7 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 		fmt.Fprintf(stderr, "riffle serve: unexpected argument %q\n", fs.Arg(0))
 		return 2
 	}
-	if err := sidecar.Serve(ctx, *path, stderr); err != nil {
+	if err := sidecar.ServeSignals(ctx, *path, stderr, hangups(ctx)); err != nil {
 		printError(stderr, "riffle serve", err)
 		return 1
 	}

@@ -51,6 +51,9 @@ type Sidecar struct {
 	// start is when the experiment's ramp schedule started, in Unix
 	// nanoseconds; a reload that sets experiment.start moves it.
 	start atomic.Int64
+	// hup, when set, is a SIGHUP channel subscribed before Start; nil
+	// means runLoops subscribes its own.
+	hup <-chan os.Signal
 }
 
 // Serve loads the config at path and runs riffle until ctx ends, then shuts
@@ -58,6 +61,14 @@ type Sidecar struct {
 // grace period, drain the store queue, close the store). Logs go to logw.
 // SIGHUP reloads the config. It returns nil after a clean shutdown.
 func Serve(ctx context.Context, path string, logw io.Writer) error {
+	return ServeSignals(ctx, path, logw, nil)
+}
+
+// ServeSignals is Serve with the SIGHUP channel the caller subscribed
+// (signal.Notify) before anything else, so a reload signal that arrives
+// during start-up reloads once the sidecar runs instead of ending the
+// process. A nil hup makes it Serve, which subscribes when it runs.
+func ServeSignals(ctx context.Context, path string, logw io.Writer, hup <-chan os.Signal) error {
 	log := slog.New(slog.NewTextHandler(logw, nil))
 	cfg, err := config.Load(path)
 	if err != nil {
@@ -67,6 +78,7 @@ func Serve(ctx context.Context, path string, logw io.Writer) error {
 	if err != nil {
 		return err
 	}
+	s.hup = hup
 	return s.Run(ctx)
 }
 
@@ -183,15 +195,19 @@ func (s *Sidecar) Run(ctx context.Context) error {
 
 // runLoops starts the background loops, each joined through wg.
 func (s *Sidecar) runLoops(ctx context.Context, wg *sync.WaitGroup) {
-	hup := make(chan os.Signal, 1)
-	signal.Notify(hup, syscall.SIGHUP)
+	hup, stopHup := s.hup, func() {}
+	if hup == nil {
+		own := make(chan os.Signal, 1)
+		signal.Notify(own, syscall.SIGHUP)
+		hup, stopHup = own, func() { signal.Stop(own) }
+	}
 	loops := []func(){
 		func() {
 			if err := s.reloader.Watch(ctx); err != nil {
 				s.log.Warn("config file watch stopped; SIGHUP and POST /api/v1/reload still reload", "err", err)
 			}
 		},
-		func() { s.reloader.ReloadOnSignal(ctx, hup); signal.Stop(hup) },
+		func() { s.reloader.ReloadOnSignal(ctx, hup); stopHup() },
 		func() { s.guard.Run(ctx) },
 		func() { s.exp.sample(ctx, 5*time.Second) },
 	}
