@@ -15,14 +15,14 @@ import (
 // runExport writes every impression of a store file, with its slots,
 // events and outcome, as NDJSON on stdout (see store.(*Store).Export). It
 // opens the file read-only, so it waits at most --timeout for a live
-// sidecar's lock and then says the file is locked. Exit 0 on success, 1 when
+// sidecar's lock (default: not at all) and then says the file is locked. Exit 0 on success, 1 when
 // the store cannot be read, 2 on bad flags.
 func runExport(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	fs := flag.NewFlagSet("riffle export", flag.ContinueOnError)
 	fs.SetOutput(stderr)
 	path := fs.String("store", "", "store file to export (required)")
 	since := fs.String("since", "", "only impressions served at or after this RFC 3339 time, or this long ago (e.g. 24h)")
-	timeout := fs.Duration("timeout", time.Second, "how long to wait for the file's lock")
+	timeout := fs.Duration("timeout", 0, "how long to wait for the file's lock; 0 = do not wait")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "usage: riffle export --store riffle.db [--since TIME]")
 		fs.PrintDefaults()
@@ -47,9 +47,9 @@ func runExport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		fmt.Fprintf(stderr, "riffle export: --since: %v\n", err)
 		return 2
 	}
-	st, err := open.ReadOnly(ctx, *path, open.Options{Store: store.Options{Timeout: *timeout}})
+	st, err := open.ReadOnly(ctx, *path, open.Options{Store: store.Options{Timeout: lockWait(*timeout)}})
 	if err != nil {
-		fmt.Fprintf(stderr, "riffle export: %v\n", err)
+		fmt.Fprintf(stderr, "riffle export: %v\n", openProblem(*path, *timeout, err))
 		return 1
 	}
 	defer st.Close()

@@ -106,7 +106,7 @@ func TestExportCommandProblems(t *testing.T) {
 		{"bad since", []string{"--store", path, "--since", "last tuesday"}, 2, `"last tuesday" is neither`},
 		{"stray argument", []string{"--store", path, "extra"}, 2, `unexpected argument "extra"`},
 		{"missing file", []string{"--store", filepath.Join(t.TempDir(), "none.db")}, 1, "none.db"},
-		{"locked by a live sidecar", []string{"--store", path, "--timeout", "100ms"}, 1, "is locked by another riffle"},
+		{"locked by a live sidecar", []string{"--store", path, "--timeout", "100ms"}, 1, "locked by a running riffle (waited 100ms); use a copy"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -85,7 +85,7 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 	fs.Var((*storeList)(&f.Stores), "store", "store file to read (repeat for the stores of several sidecars)")
 	fs.StringVar(&f.Experiment, "experiment", "", "experiment to report on (default: the only one in the stores)")
 	fs.StringVar(&f.Format, "format", "text", "output format: text, json or html")
-	fs.DurationVar(&f.Timeout, "timeout", time.Second, "how long to wait for a store file's lock")
+	fs.DurationVar(&f.Timeout, "timeout", 0, "how long to wait for a store file's lock; 0 = do not wait")
 	fs.Float64Var(&f.Params.Alpha, "alpha", 0.05, "two-sided significance level")
 	fs.Float64Var(&f.Params.Power, "power", 0.8, "planned power behind needed")
 	fs.Float64Var(&f.Params.MDE, "mde", 0.02, "minimum detectable Delta behind needed")
@@ -113,8 +113,8 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 		return f, errors.New("--store is required, e.g. --store riffle.db")
 	case f.Format != "text" && f.Format != "json" && f.Format != "html":
 		return f, fmt.Errorf("--format %q: want text, json or html", f.Format)
-	case f.Timeout <= 0:
-		return f, fmt.Errorf("--timeout %v: want a positive duration", f.Timeout)
+	case f.Timeout < 0:
+		return f, fmt.Errorf("--timeout %v: want 0 (do not wait) or a positive duration", f.Timeout)
 	case !(f.Params.Alpha > 0 && f.Params.Alpha < 1):
 		return f, fmt.Errorf("--alpha %v: want a level in (0, 1)", f.Params.Alpha)
 	case !(f.Params.Power > 0 && f.Params.Power < 1):
@@ -142,7 +142,7 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 		if err := ctx.Err(); err != nil {
 			return store.Aggregate{}, err
 		}
-		s, err := open.ReadOnly(ctx, p, open.Options{Store: store.Options{Timeout: timeout}})
+		s, err := open.ReadOnly(ctx, p, open.Options{Store: store.Options{Timeout: lockWait(timeout)}})
 		if err != nil {
 			return store.Aggregate{}, openProblem(p, timeout, err)
 		}
@@ -223,6 +223,23 @@ func notCopy(s store.Reader, path string, seen map[string]string) error {
 	return nil
 }
 
+// problem is an error whose message says it all in words and that still
+// matches its sentinel with errors.Is (whose own text would repeat it).
+type problem struct {
+	err error
+	msg string
+}
+
+func (p *problem) Error() string { return p.msg }
+func (p *problem) Unwrap() error { return p.err }
+
+// lockWait is the store.Options.Timeout for a --timeout flag: 0 means do
+// not wait, which is the shortest positive timeout (the store's 0 means its
+// default).
+func lockWait(timeout time.Duration) time.Duration {
+	return max(timeout, time.Nanosecond)
+}
+
 // openProblem says in words why a store file could not be opened, keeping
 // the cause for errors.Is.
 func openProblem(path string, timeout time.Duration, err error) error {
@@ -230,8 +247,13 @@ func openProblem(path string, timeout time.Duration, err error) error {
 	case errors.Is(err, fs.ErrNotExist):
 		return fmt.Errorf("%s: no such store file: %w", path, fs.ErrNotExist)
 	case errors.Is(err, store.ErrLocked):
-		return fmt.Errorf("%s: locked by a running riffle (waited %v); report on a copy taken from its admin listener's GET /api/v1/snapshot: %w",
-			path, timeout, store.ErrLocked)
+		waited := ""
+		if timeout > 0 {
+			waited = fmt.Sprintf(" (waited %v)", timeout)
+		}
+		return &problem{err: store.ErrLocked, msg: fmt.Sprintf(
+			"%s: locked by a running riffle%s; use a copy taken from its admin listener's GET /api/v1/snapshot",
+			path, waited)}
 	case errors.Is(err, store.ErrNotStore):
 		return fmt.Errorf("%s: not a riffle store: %w", path, store.ErrNotStore)
 	case errors.Is(err, store.ErrSchema):

@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"math/rand/v2"
 	"os"
@@ -253,7 +254,7 @@ func TestReportStoreProblems(t *testing.T) {
 	}{
 		{"missing file", []string{"--store", good, "--store", filepath.Join(dir, "gone.db")}, []string{"gone.db: no such store file"}},
 		{"foreign file", []string{"--store", foreign}, []string{"notes.db: not a riffle store"}},
-		{"locked file", []string{"--store", locked, "--timeout", "100ms"}, []string{"live.db: locked by a running riffle", "/api/v1/snapshot"}},
+		{"locked file", []string{"--store", locked}, []string{"live.db: locked by a running riffle; use a copy", "/api/v1/snapshot"}},
 		{"unknown experiment", []string{"--store", good, "--experiment", "seed-swap"}, []string{`"seed-swap" is in none of the stores`, "spring-refresh"}},
 		{"several experiments", []string{"--store", two}, []string{"several experiments (mulch-finder, spring-refresh)", "--experiment"}},
 		{"same store twice", []string{"--store", good, "--store", good}, []string{"copies of one sidecar's store", "count twice"}},
@@ -299,7 +300,7 @@ func TestReportBadFlags(t *testing.T) {
 		{[]string{"--store", "a.db", "--alpha", "0"}, "--alpha 0"},
 		{[]string{"--store", "a.db", "--margin", "-0.1"}, "--margin -0.1"},
 		{[]string{"--store", "a.db", "--mde", "0.7"}, "--mde 0.7"},
-		{[]string{"--store", "a.db", "--timeout", "0s"}, "--timeout 0s"},
+		{[]string{"--store", "a.db", "--timeout", "-1s"}, "--timeout -1s"},
 		{[]string{"--store", "a.db", "b.db"}, `unexpected argument "b.db"`},
 		{[]string{"--store", ""}, "empty path"},
 	}
@@ -345,6 +346,34 @@ experiment: {name: spring-refresh, alpha: 0.01, mde: 0.05, margin: 0.03}
 		}
 		if st.Alpha != c.alpha || st.Margin != c.mg || st.MDE != 0.05 {
 			t.Errorf("%v: alpha %v margin %v mde %v; want %v, %v, 0.05", c.args, st.Alpha, st.Margin, st.MDE, c.alpha, c.mg)
+		}
+	}
+}
+
+// TestReportLockedAtOnce checks the README's promise that a store held by a
+// running riffle is reported at once, in one sentence: the old default
+// waited 1s for the lock and printed "locked by a running riffle (waited
+// 1s); ...: is locked by another riffle". The bound leaves room for the
+// store's one 50 ms lock retry (bbolt's flock loop).
+func TestReportLockedAtOnce(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "live.db")
+	live, err := store.Open(path, &store.Options{FinalizeEvery: -1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { _ = live.Close() })
+	for _, c := range []struct {
+		run  func(context.Context, []string, io.Writer, io.Writer) int
+		name string
+	}{{runReport, "report"}, {runExport, "export"}} {
+		start := time.Now()
+		code, _, errOut := runCmd(t, c.run, "--store", path)
+		took := time.Since(start)
+		if code != 1 || strings.Count(errOut, "locked") != 1 || strings.Contains(errOut, "waited") {
+			t.Errorf("%s: exit %d, stderr %q; want exit 1 saying once that the file is locked", c.name, code, errOut)
+		}
+		if took >= 900*time.Millisecond {
+			t.Errorf("%s: took %v to say the file is locked; want at once (the old default waited 1s)", c.name, took)
 		}
 	}
 }

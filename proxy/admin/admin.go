@@ -147,7 +147,13 @@ func New(o Options) http.Handler {
 		r.With(auth).Mount("/debug", middleware.Profiler())
 	}
 	if o.Status != nil {
-		r.Handle("/status", o.Status)
+		// The page lives at /status/; without the slash, a handler under
+		// StripPrefix sees an empty path and sends the browser to /, a 404.
+		r.Get("/status", func(w http.ResponseWriter, r *http.Request) {
+			u := *r.URL
+			u.Path += "/"
+			http.Redirect(w, r, u.RequestURI(), http.StatusMovedPermanently)
+		})
 		r.Handle("/status/*", o.Status)
 	}
 	return r

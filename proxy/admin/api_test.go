@@ -270,7 +270,7 @@ func TestStatusMounted(t *testing.T) {
 		_, _ = io.WriteString(w, "status page at "+r.URL.Path)
 	})
 	f := newFixture(t, func(o *Options) { o.Status = page })
-	for _, p := range []string{"/status", "/status/app.js"} {
+	for _, p := range []string{"/status/", "/status/app.js"} { // /status redirects: TestStatusWithoutSlash
 		_, body := f.do(t, http.MethodGet, p, "")
 		if got, want := string(body), "status page at "+p; got != want {
 			t.Errorf("GET %s = %q, want %q", p, got, want)
