@@ -19,6 +19,8 @@ type backend struct {
 	name    string // "incumbent" or "challenger": the metrics' backend label
 	base    *url.URL
 	timeout time.Duration
+	maxBody int64 // max_backend_bytes: most bytes of one answer after decoding
+	strict  bool  // answers are refused past the in-flight budget (challenger)
 	m       backendMetrics
 }
 
@@ -53,6 +55,10 @@ type call struct {
 	dur    time.Duration
 	list   listDoc
 	lim    io.LimitedReader
+	br     bodyReader
+	// held is what the body reserved of the server's in-flight budget;
+	// it is returned when the exchange ends.
+	held int64
 	// listErr says why the answer has no usable list (wraps ErrBody); set
 	// only for a 2xx answer whose body was read.
 	listErr error
@@ -112,7 +118,7 @@ func (s *Server) roundTrip(ctx context.Context, b *backend, in *http.Request, h 
 	defer resp.Body.Close()
 	s.reached(b)
 	c.status, c.header = resp.StatusCode, resp.Header
-	if err := s.readBody(resp, c); err != nil {
+	if err := s.readBody(ctx, b, resp, c); err != nil {
 		c.fail(ctx, b, kindBody, err)
 		return
 	}
@@ -145,13 +151,16 @@ func (c *call) fail(ctx context.Context, b *backend, kind failKind, err error) {
 	c.err = fmt.Errorf("%w: %s: %w", sentinel, b.name, err)
 }
 
-// readBody reads resp's body into c.body, decoding gzip, up to the limit.
-func (s *Server) readBody(resp *http.Response, c *call) error {
+// readBody reads resp's body into c.body, decoding gzip, up to b's limit,
+// under ctx's deadline and the in-flight budget (see bodyReader).
+func (s *Server) readBody(ctx context.Context, b *backend, resp *http.Response, c *call) error {
 	var r io.Reader = resp.Body
+	var zin *countingReader
 	switch enc := strings.ToLower(strings.TrimSpace(resp.Header.Get("Content-Encoding"))); enc {
 	case "", "identity":
 	case "gzip", "x-gzip":
-		zr, err := s.gzipReader(resp.Body)
+		zin = &countingReader{r: resp.Body}
+		zr, err := s.gzipReader(zin)
 		if err != nil {
 			return fmt.Errorf("gzip body: %w", err)
 		}
@@ -160,14 +169,19 @@ func (s *Server) readBody(resp *http.Response, c *call) error {
 	default:
 		return fmt.Errorf("content coding %q not supported (riffle asks for gzip)", enc)
 	}
-	c.lim = io.LimitedReader{R: r, N: s.maxResponse + 1}
+	limit := b.maxBody
+	if limit <= 0 {
+		limit = s.maxResponse
+	}
+	c.br = bodyReader{ctx: ctx, r: r, b: &s.bodies, strict: b.strict, held: &c.held, zin: zin}
+	c.lim = io.LimitedReader{R: &c.br, N: limit + 1}
 	n, err := c.body.ReadFrom(&c.lim)
-	c.lim.R = nil
+	c.lim.R, c.br = nil, bodyReader{}
 	if err != nil {
 		return fmt.Errorf("read body: %w", err)
 	}
-	if n > s.maxResponse {
-		return fmt.Errorf("body larger than %d bytes", s.maxResponse)
+	if n > limit {
+		return fmt.Errorf("body larger than max_backend_bytes (%d bytes) after decoding", limit)
 	}
 	return nil
 }

@@ -66,12 +66,13 @@ type Options struct {
 	// alike. If nil, NewTransport's.
 	Transport http.RoundTripper
 	// MaxResponseBytes limits how much of one backend response body is
-	// read on a configured route; a larger body is a body failure. If zero
-	// or negative, 16 MiB.
+	// read on a configured route, after decoding, when the config's
+	// max_backend_bytes is unset; a larger body is a body failure. If zero
+	// or negative, config.DefaultMaxBackendBytes (4 MiB).
 	MaxResponseBytes int64
 }
 
-const defaultMaxResponseBytes = 16 << 20
+const defaultMaxResponseBytes = config.DefaultMaxBackendBytes
 
 // NewTransport returns the http.Transport riffle uses for backends. Its
 // pool keeps up to 256 idle connections per backend: net/http's default of

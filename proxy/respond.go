@@ -73,6 +73,8 @@ func (s *Server) getExchange() *exchange {
 }
 
 func (s *Server) putExchange(x *exchange) {
+	s.bodies.release(x.inc.held + x.chal.held)
+	x.inc.held, x.chal.held = 0, 0
 	if x.req.Cap() > maxPooledBuffer || x.inc.body.Cap() > maxPooledBuffer ||
 		x.chal.body.Cap() > maxPooledBuffer || cap(x.out) > maxPooledBuffer {
 		return

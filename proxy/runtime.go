@@ -27,6 +27,7 @@ type runtime struct {
 	hedge           merge.Hedge
 	ramp            float64 // experiment.ramp, used when there is no Gate
 	maxBody         int64
+	inFlight        int64 // backend_bytes_in_flight, set on the server's budget by Apply
 	serveChallenger bool
 	user            userSource
 }
@@ -58,6 +59,12 @@ func (s *Server) build(cfg *config.Config) (*runtime, error) {
 	}
 	rt.inc = buildBackend("incumbent", cfg.Incumbent, s.incM, bad)
 	rt.chal = buildBackend("challenger", cfg.Challenger, s.chalM, bad)
+	rt.inc.maxBody, rt.chal.maxBody = cfg.MaxBackendBytes, cfg.MaxBackendBytes
+	rt.chal.strict = true
+	rt.inFlight = cfg.BackendBytesInFlight
+	if rt.inFlight <= 0 {
+		rt.inFlight = config.DefaultBackendInFlight
+	}
 	switch cfg.OnIncumbentFailure {
 	case "", "fail":
 	case "serve-challenger":

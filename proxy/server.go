@@ -44,6 +44,7 @@ type Server struct {
 
 	exchanges sync.Pool // *exchange
 	gzip      sync.Pool // *gzip.Reader
+	bodies    budget    // bytes held by backend answer bodies in flight
 	copyBufs  bufferPool
 }
 
@@ -108,6 +109,7 @@ func (s *Server) Apply(cfg *config.Config) error {
 	if err != nil {
 		return err
 	}
+	s.bodies.limit.Store(rt.inFlight)
 	old := s.rt.Swap(rt)
 	if old != nil {
 		for _, ro := range old.routes {

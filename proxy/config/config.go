@@ -47,6 +47,24 @@ type Config struct {
 	// ShutdownGrace bounds how long in-flight requests may run after
 	// SIGTERM. Default 10s.
 	ShutdownGrace time.Duration `yaml:"shutdown_grace"`
+	// MaxBackendBytes limits one backend answer on a configured route
+	// after decoding, enforced while it is read and inflated (a gzip bomb
+	// stops there); a larger answer is a body failure. Default 4 MiB.
+	MaxBackendBytes int64 `yaml:"max_backend_bytes"`
+	// BackendBytesInFlight bounds the bytes held by challenger answers
+	// being read or merged at once; a challenger answer that would pass it
+	// is a body failure and the incumbent's list is served. Incumbent
+	// answers are never refused for it. Default 64 MiB.
+	BackendBytesInFlight int64 `yaml:"backend_bytes_in_flight"`
+	// ReadHeaderTimeout bounds reading a request's header on the data
+	// plane and admin listeners (restart). Default 10s.
+	ReadHeaderTimeout time.Duration `yaml:"read_header_timeout"`
+	// ReadBodyTimeout bounds reading a request's body on routes, POST
+	// /feedback and pass-through, counted from the end of its header; a
+	// body still arriving then is cut off (408). Default 10s.
+	ReadBodyTimeout time.Duration `yaml:"read_body_timeout"`
+	// Feedback tunes POST /feedback.
+	Feedback Feedback `yaml:"feedback"`
 
 	// Incumbent is the model serving today; it is required.
 	Incumbent Backend `yaml:"incumbent"`
@@ -93,6 +111,19 @@ type User struct {
 	Query string `yaml:"query"`
 	// Body is an RFC 6901 pointer into a JSON request body, e.g. /user/id.
 	Body string `yaml:"body"`
+}
+
+// Feedback tunes POST /feedback.
+type Feedback struct {
+	// ClockSkew is how far before its impression an event may be stamped
+	// and still count, as at the impression's time: clients' clocks and
+	// second-precision stamps lag the server's. Default 30s; an event
+	// further before is rejected, saying by how much.
+	ClockSkew time.Duration `yaml:"clock_skew"`
+	// StoreWait bounds how long a request waits for the store to make its
+	// events durable; past it the answer is 503 with Retry-After and the
+	// client retries. Default 5s.
+	StoreWait time.Duration `yaml:"store_wait"`
 }
 
 // Queue tunes the store's group commit.

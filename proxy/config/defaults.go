@@ -13,6 +13,12 @@ const (
 	DefaultMaxBodyBytes       = 1 << 20
 	DefaultOnIncumbentFailure = "fail"
 	DefaultShutdownGrace      = 10 * time.Second
+	DefaultMaxBackendBytes    = 4 << 20
+	DefaultBackendInFlight    = 64 << 20
+	DefaultReadHeaderTimeout  = 10 * time.Second
+	DefaultReadBodyTimeout    = 10 * time.Second
+	DefaultClockSkew          = 30 * time.Second
+	DefaultStoreWait          = 5 * time.Second
 	DefaultTimeout            = 200 * time.Millisecond
 	DefaultPolicy             = "team-draft"
 	DefaultTau                = 3.0
@@ -49,6 +55,12 @@ func (c *Config) ApplyDefaults() {
 		c.MaxBodyBytes = DefaultMaxBodyBytes
 	}
 	setDuration(&c.ShutdownGrace, DefaultShutdownGrace)
+	setInt64(&c.MaxBackendBytes, DefaultMaxBackendBytes)
+	setInt64(&c.BackendBytesInFlight, DefaultBackendInFlight)
+	setDuration(&c.ReadHeaderTimeout, DefaultReadHeaderTimeout)
+	setDuration(&c.ReadBodyTimeout, DefaultReadBodyTimeout)
+	setDuration(&c.Feedback.ClockSkew, DefaultClockSkew)
+	setDuration(&c.Feedback.StoreWait, DefaultStoreWait)
 	setDuration(&c.Incumbent.Timeout, DefaultTimeout)
 	setDuration(&c.Challenger.Timeout, DefaultTimeout)
 	if len(c.Routes) == 0 {
@@ -94,6 +106,12 @@ func setString(p *string, v string) {
 }
 
 func setInt(p *int, v int) {
+	if *p == 0 {
+		*p = v
+	}
+}
+
+func setInt64(p *int64, v int64) {
 	if *p == 0 {
 		*p = v
 	}

@@ -14,11 +14,13 @@ import (
 // Restart-only keys are those bound to resources opened once at start:
 // listen and admin (the listeners), store and store_retention (the open
 // bbolt file and its pruner), queue.size, queue.batch and queue.interval
-// (the group-commit writer) and pprof (handlers mounted on the admin mux).
+// (the group-commit writer), pprof (handlers mounted on the admin mux) and
+// read_header_timeout (set on the listeners' servers).
 // Everything else is live: backends' URLs and timeouts, routes, user,
 // policy, tau, credit, ramp, start, schedule, hedges, window, events,
 // debias, alpha, power, mde, margin, guardrails, on_incumbent_failure,
-// max_body_bytes, shutdown_grace and admin_token_file (read on every
+// max_body_bytes, max_backend_bytes, backend_bytes_in_flight,
+// read_body_timeout, feedback.*, shutdown_grace and admin_token_file (read on every
 // mutating admin request).
 func RestartOnly(old, next *Config) []Problem {
 	var ps []Problem
@@ -45,6 +47,7 @@ func RestartOnly(old, next *Config) []Problem {
 	num("queue.batch", old.Queue.Batch, next.Queue.Batch)
 	span("queue.interval", old.Queue.Interval, next.Queue.Interval)
 	num("pprof", old.Pprof, next.Pprof)
+	span("read_header_timeout", old.ReadHeaderTimeout, next.ReadHeaderTimeout)
 	return ps
 }
 

@@ -88,6 +88,16 @@ func (k *checker) process(c *Config) {
 	k.positive("max_body_bytes", c.MaxBodyBytes)
 	k.oneOf("on_incumbent_failure", c.OnIncumbentFailure, "fail", "serve-challenger")
 	k.positiveDuration("shutdown_grace", c.ShutdownGrace)
+	k.positive("max_backend_bytes", c.MaxBackendBytes)
+	k.positive("backend_bytes_in_flight", c.BackendBytesInFlight)
+	if c.BackendBytesInFlight < c.MaxBackendBytes && c.MaxBackendBytes > 0 {
+		k.add("backend_bytes_in_flight", "%d is less than max_backend_bytes (%d): no challenger answer of the largest size could be read",
+			c.BackendBytesInFlight, c.MaxBackendBytes)
+	}
+	k.positiveDuration("read_header_timeout", c.ReadHeaderTimeout)
+	k.positiveDuration("read_body_timeout", c.ReadBodyTimeout)
+	k.nonNegative("feedback.clock_skew", c.Feedback.ClockSkew)
+	k.positiveDuration("feedback.store_wait", c.Feedback.StoreWait)
 }
 
 // addr checks a listen address: host:port with a numeric port; the host may
