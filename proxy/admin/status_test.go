@@ -13,7 +13,7 @@ import (
 // keeps the query (RFC 9110 section 15.4: the target is a URI reference).
 func TestStatusWithoutSlash(t *testing.T) {
 	f := newFixture(t, func(o *Options) {
-		o.Status = http.StripPrefix("/status", status.Handler(status.NewHistory(8)))
+		o.Status = http.StripPrefix("/status", status.Handler(status.Options{History: status.NewHistory(8)}))
 	})
 	client := *f.srv.Client()
 	client.CheckRedirect = func(*http.Request, []*http.Request) error { return http.ErrUseLastResponse }
