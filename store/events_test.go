@@ -3,6 +3,7 @@ package store
 import (
 	"context"
 	"errors"
+	"fmt"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -88,13 +89,41 @@ func TestAddEventsAccepts(t *testing.T) {
 		{Impression: im.ID, Item: "a1", Type: "click", Key: "k1", Time: t0.Add(time.Minute)},
 		{Impression: im.ID, Item: "a1", Type: "click", Key: "k2", Time: t0.Add(time.Minute)}, // another key: another event
 		{Impression: im.ID, Item: "b2", Type: "click"},                                       // no time: the store's clock
+		{Impression: im.ID, Item: "b2", Type: "click", Key: strings.Repeat("k", MaxKeyLen)},  // a key at the limit
 	}
 	mustAdd(t, st, evs...)
 	if got := countEvents(t, st, im.ID); got != len(evs) {
 		t.Errorf("%d events stored, want %d", got, len(evs))
 	}
-	if evs[4].Time != (time.Time{}) {
+	if evs[4].Time != (time.Time{}) || evs[5].Time != (time.Time{}) {
 		t.Error("AddEvents wrote into the caller's slice")
+	}
+}
+
+// TestKeyedAndUnkeyedAreDistinct follows Event.Key's contract: a keyed
+// event is a duplicate only of the same key, and an unkeyed one only of an
+// earlier unkeyed event with the same item and type. So a keyed click on
+// b1, then an unkeyed click on b1, are two clicks; a second unkeyed click
+// on b1 is the duplicate; and the challenger (team-draft: b1 is its pick)
+// scores 2, one per recorded click of weight 1.
+func TestKeyedAndUnkeyedAreDistinct(t *testing.T) {
+	st, _ := openTest(t, testOptions(newClock(t0)))
+	im := teamDraftImpression(t0, 1, 0)
+	recordAll(t, st, im)
+	keyed := Event{Impression: im.ID, Item: "b1", Type: "click", Key: "tap-1", Time: t0.Add(time.Minute)}
+	plain := Event{Impression: im.ID, Item: "b1", Type: "click", Time: t0.Add(2 * time.Minute)}
+	mustAdd(t, st, keyed)
+	if err := st.AddEvents(t.Context(), []Event{plain})[0]; err != nil {
+		t.Fatalf("unkeyed click after a keyed click on the same item: %v, want recorded", err)
+	}
+	if err := st.AddEvents(t.Context(), []Event{plain})[0]; !errors.Is(err, ErrDuplicate) {
+		t.Fatalf("second unkeyed click on the same item: %v, want ErrDuplicate", err)
+	}
+	if n, err := st.Finalize(t0.Add(time.Hour)); n != 1 || err != nil {
+		t.Fatalf("Finalize = %d, %v; want 1, nil", n, err)
+	}
+	if got, _ := readRecord(t, st, im.ID); got.Score.Challenger != 2 || got.Score.Incumbent != 0 {
+		t.Errorf("score %+v, want challenger 2, incumbent 0", got.Score)
 	}
 }
 
@@ -221,18 +250,44 @@ func TestEventsRightAfterRecord(t *testing.T) {
 	}
 }
 
+// TestAddEventsCancelled sends events with a context already cancelled:
+// the writer may or may not take each request first, so each answer is nil
+// (recorded), the context's error before the request was handed over (not
+// recorded), or the context's error after ("outcome unknown"). A replay
+// with a live context must then agree with every answer: an acknowledged
+// event is a duplicate, one refused before hand-over is new, and in the
+// end each of the 50 events is stored exactly once.
 func TestAddEventsCancelled(t *testing.T) {
 	st, _ := openTest(t, testOptions(newClock(t0)))
 	im := teamDraftImpression(t0, 1, 0)
 	recordAll(t, st, im)
-	for i := range 50 {
+	const n = 50
+	evs := make([]Event, n)
+	first := make([]error, n)
+	for i := range evs {
 		ctx, cancel := context.WithCancel(t.Context())
 		cancel()
-		ev := Event{Impression: im.ID, Item: "a1", Type: "click", Key: "k" + string(rune('A'+i))}
-		// Cancelled before the call: either the writer got the request in
-		// time and recorded it, or the caller hears the context's error.
-		if err := st.AddEvents(ctx, []Event{ev})[0]; err != nil && !errors.Is(err, context.Canceled) {
-			t.Fatalf("AddEvents with a cancelled context: %v", err)
+		evs[i] = Event{Impression: im.ID, Item: "a1", Type: "click", Key: fmt.Sprintf("k%02d", i), Time: t0.Add(time.Second)}
+		first[i] = st.AddEvents(ctx, evs[i:i+1])[0]
+		if first[i] != nil && !errors.Is(first[i], context.Canceled) {
+			t.Fatalf("event %d with a cancelled context: %v, want nil or context.Canceled", i, first[i])
 		}
+	}
+	if err := st.Flush(t.Context()); err != nil {
+		t.Fatal(err)
+	}
+	for i, err := range st.AddEvents(t.Context(), evs) {
+		unknown := first[i] != nil && strings.Contains(first[i].Error(), "outcome unknown")
+		switch {
+		case first[i] == nil && !errors.Is(err, ErrDuplicate):
+			t.Errorf("event %d was acknowledged, but its replay gave %v, want ErrDuplicate", i, err)
+		case first[i] != nil && !unknown && err != nil:
+			t.Errorf("event %d was refused before hand-over (%v), but its replay gave %v, want nil", i, first[i], err)
+		case unknown && err != nil && !errors.Is(err, ErrDuplicate):
+			t.Errorf("event %d: replay after an unknown outcome gave %v, want nil or ErrDuplicate", i, err)
+		}
+	}
+	if got := countEvents(t, st, im.ID); got != n {
+		t.Errorf("%d events stored after the replay, want each of the %d once", got, n)
 	}
 }
