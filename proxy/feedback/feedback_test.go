@@ -220,6 +220,17 @@ func TestReplayIsIdempotent(t *testing.T) {
 	if status != http.StatusAccepted || r.Accepted != 0 || r.Duplicates != 3 || len(r.Rejected) != 0 {
 		t.Fatalf("replay: %d %+v; want 202, 0 accepted, 3 duplicates", status, r)
 	}
+	// The metric's help text promises duplicates are counted under
+	// reason="duplicate"; the first send's three lines are accepted, one
+	// per event type.
+	if got := f.rejected("duplicate"); got != 3 {
+		t.Errorf("rejected{reason=duplicate} = %v after replaying 3 events, want 3", got)
+	}
+	for typ, want := range map[string]float64{"click": 2, "purchase": 1} {
+		if got := f.value("riffle_feedback_events_accepted_total", typ); got != want {
+			t.Errorf("accepted{event=%s} = %v, want %v (first send only)", typ, got, want)
+		}
+	}
 	if _, err := f.st.Finalize(context.Background(), t0.Add(time.Hour)); err != nil {
 		t.Fatal(err)
 	}
