@@ -6,7 +6,6 @@ import (
 	"net/http"
 	"sync"
 	"testing"
-	"time"
 
 	"riffle/merge"
 )
@@ -51,9 +50,10 @@ func TestPassThroughIncumbentDown(t *testing.T) {
 // TestInFlightKeepsItsRuntime: a request that started before Apply ends
 // on the configuration it started with.
 func TestInFlightKeepsItsRuntime(t *testing.T) {
-	release := make(chan struct{})
+	arrived, release := make(chan struct{}, 1), make(chan struct{})
 	inc := backendFunc(t, func(w http.ResponseWriter, r *http.Request) {
 		if r.URL.Query().Get("slow") != "" {
+			arrived <- struct{}{}
 			<-release
 		}
 		w.Write([]byte(listBody("i", "a", "b")))
@@ -62,7 +62,7 @@ func TestInFlightKeepsItsRuntime(t *testing.T) {
 	h := newHarness(t, testConfig(inc.URL, chal), Options{})
 	done := make(chan reply)
 	go func() { done <- h.do(t, "GET", "/v1/recommend?slow=1", "", nil) }()
-	time.Sleep(50 * time.Millisecond) // let the request reach the incumbent
+	<-arrived // the request is at the incumbent, so it has its runtime
 	next := testConfig(inc.URL, chal)
 	next.Experiment.Name = "summer-refresh"
 	next.Experiment.Policy = "balanced"

@@ -6,6 +6,7 @@ import (
 	"context"
 	"encoding/json"
 	"flag"
+	"fmt"
 	"os"
 	"path/filepath"
 	"testing"
@@ -75,5 +76,88 @@ func TestExportGolden(t *testing.T) {
 				t.Errorf("export differs from %s:\n got %s\nwant %s", path, buf.Bytes(), want)
 			}
 		})
+	}
+}
+
+// exported is the part of one export line TestExportContent checks.
+type exported struct {
+	Impression string `json:"impression"`
+	Time       string `json:"time"`
+	User       string `json:"user"`
+	Policy     string `json:"policy"`
+	Fallback   string `json:"fallback"`
+	Slots      []struct {
+		Item string `json:"item"`
+		Team string `json:"team"`
+	} `json:"slots"`
+	Events []struct {
+		Item, Event, Time, Key string
+		Slot                   int
+	} `json:"events"`
+	Outcome string              `json:"outcome"`
+	Score   *map[string]float64 `json:"score"`
+}
+
+// TestExportContent checks what the golden files hold against the
+// fixture's facts, worked out from exportFixture and Export's contract
+// rather than from the output: the golden test alone would accept any
+// output once regenerated with -update.
+func TestExportContent(t *testing.T) {
+	st := exportFixture(t)
+	var buf bytes.Buffer
+	if err := st.Export(&buf, time.Time{}); err != nil {
+		t.Fatal(err)
+	}
+	var lines []exported
+	sc := bufio.NewScanner(&buf)
+	for sc.Scan() {
+		var l exported
+		if err := json.Unmarshal(sc.Bytes(), &l); err != nil {
+			t.Fatalf("export line %q: %v", sc.Text(), err)
+		}
+		lines = append(lines, l)
+	}
+	// Oldest first: won (t0), plain (t0+1m), open (t0+1h).
+	want := []struct{ id ID }{{fixedID(t0, 1)}, {fixedID(t0.Add(time.Minute), 3)}, {fixedID(t0.Add(time.Hour), 2)}}
+	if len(lines) != len(want) {
+		t.Fatalf("%d lines, want %d", len(lines), len(want))
+	}
+	for i, w := range want {
+		if lines[i].Impression != w.id.String() {
+			t.Errorf("line %d is impression %s, want %s", i+1, lines[i].Impression, w.id)
+		}
+	}
+	won, plain, open := lines[0], lines[1], lines[2]
+	// won: the challenger's b1 (slot 2 of a1 b1 a2 b2) clicked (weight 1)
+	// and bought (3) within the window: team-draft credits the challenger 4.
+	if won.Outcome != "challenger" || won.Score == nil || (*won.Score)["challenger"] != 4 || (*won.Score)["incumbent"] != 0 {
+		t.Errorf("won: outcome %q, score %v; want challenger, 0 to 4", won.Outcome, won.Score)
+	}
+	if len(won.Events) != 2 || won.Events[0].Slot != 2 || won.Events[1].Key != "order-17" || won.Events[1].Event != "purchase" {
+		t.Errorf("won: events %+v; want a click then the purchase keyed order-17, both at slot 2", won.Events)
+	}
+	if won.User != fmt.Sprintf("%016x", HashUser("shopper-1")) || won.Time != "2026-03-14T09:00:00Z" || won.Policy != "team-draft" {
+		t.Errorf("won: user %q, time %q, policy %q", won.User, won.Time, won.Policy)
+	}
+	// plain: incumbent only, no feedback, finalised: outcome none, no score.
+	if plain.Outcome != "none" || plain.Score != nil || plain.Policy != "" || plain.Fallback != "challenger-timeout" || len(plain.Events) != 0 {
+		t.Errorf("plain: %+v; want outcome none, no score or policy, fallback challenger-timeout, no events", plain)
+	}
+	for _, s := range plain.Slots {
+		if s.Team != "incumbent" {
+			t.Errorf("plain: slot %s of team %q, want incumbent", s.Item, s.Team)
+		}
+	}
+	// open: served at t0+1h, its window not closed at t0+45m: open, no
+	// score, and its one event a click on a2 at slot 3.
+	if open.Outcome != "open" || open.Score != nil || len(open.Events) != 1 || open.Events[0].Slot != 3 || open.User != "" {
+		t.Errorf("open: %+v; want outcome open, no score or user, one event at slot 3", open)
+	}
+	var since bytes.Buffer
+	if err := st.Export(&since, t0.Add(30*time.Second)); err != nil {
+		t.Fatal(err)
+	}
+	if n := bytes.Count(since.Bytes(), []byte("\n")); n != 2 || bytes.Contains(since.Bytes(), []byte(won.Impression)) {
+		t.Errorf("export since t0+30s: %d lines, want 2 without the impression served at t0:\n%s", n, since.Bytes())
 	}
 }

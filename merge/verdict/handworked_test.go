@@ -176,3 +176,28 @@ func TestNonInferiorityIsAlwaysValid(t *testing.T) {
 		}
 	}
 }
+
+// TestDesignEffectBelowOneIsFloored: three users with one win and one loss
+// each and one user with two wins (W = 5, L = 3, n = 8, R = 5/8) vary less
+// between users than independent impressions would. By Cochran's formula
+// (see TestClusteredVarianceByHand) the residuals y_u - R n_u are -1/4
+// three times and 3/4: v = (4/3)(3/4)/64 = 1/64; independently, +3/8 five
+// times and -5/8 three times: v = (8/7)(15/8)/64 = (15/7)/64. The design
+// effect is 7/15. The package floors it at 1 wherever it enters a
+// calculation, so Wilson's interval for the win share uses the raw counts
+// 5 of 8: with z = 2, centre (5 + 2)/(8 + 4) = 7/12 and half-width
+// 2 sqrt(5*3/8 + 1)/12 = sqrt(2.875)/6.
+func TestDesignEffectBelowOneIsFloored(t *testing.T) {
+	users := map[uint64][4]int64{1: wlt(1, 1, 0), 2: wlt(1, 1, 0), 3: wlt(1, 1, 0), 4: wlt(2, 0, 0)}
+	s, err := Compute(Input{Outcomes: wlt(5, 3, 0), Users: users, Params: Params{Alpha: alphaZ2}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := 7.0 / 15; math.Abs(s.DesignEffect-want) > 1e-12 {
+		t.Errorf("design effect %v, want 7/15 = %v", s.DesignEffect, want)
+	}
+	half := math.Sqrt(2.875) / 6
+	if want := (Interval{7.0/12 - half, 7.0/12 + half}); math.Abs(s.Wilson[0]-want[0]) > 1e-9 || math.Abs(s.Wilson[1]-want[1]) > 1e-9 {
+		t.Errorf("Wilson interval %v, want %v (raw counts: the design effect floored at 1)", s.Wilson, want)
+	}
+}

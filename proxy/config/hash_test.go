@@ -74,10 +74,36 @@ func TestHashChanges(t *testing.T) {
 	}
 }
 
+// TestHashNaN covers configs JSON cannot encode (a NaN or infinite ramp,
+// which YAML can spell and Validate rejects later): Hash must still be a
+// fingerprint of the content, so two such configs built separately from
+// the same values hash alike, while ones that differ in any field, or in
+// which non-finite value they hold, hash apart, and none hashes like the
+// same config with a finite ramp.
 func TestHashNaN(t *testing.T) {
-	c := &Config{Experiment: Experiment{Ramp: ptr(math.NaN())}}
-	a, b := c.Hash(), c.Hash()
-	if a != b || len(a) != 16 {
-		t.Errorf("hash of an unencodable config: got %q then %q, want one stable 16-digit hash", a, b)
+	with := func(name string, ramp float64) *Config {
+		c := parseOK(t, string(minimal(t)))
+		c.Experiment.Name, c.Experiment.Ramp = name, ptr(ramp)
+		return c
+	}
+	nan := with("spring-refresh", math.NaN()).Hash()
+	if !regexp.MustCompile(`^[0-9a-f]{16}$`).MatchString(nan) {
+		t.Fatalf("Hash of a NaN ramp: got %q, want 16 hex digits", nan)
+	}
+	if again := with("spring-refresh", math.NaN()).Hash(); again != nan {
+		t.Errorf("two configs with the same NaN ramp hash %s and %s, want alike", nan, again)
+	}
+	seen := map[string]string{nan: "NaN ramp"}
+	for name, c := range map[string]*Config{
+		"NaN ramp, other experiment": with("summer-refresh", math.NaN()),
+		"+Inf ramp":                  with("spring-refresh", math.Inf(1)),
+		"-Inf ramp":                  with("spring-refresh", math.Inf(-1)),
+		"ramp 0.5":                   with("spring-refresh", 0.5),
+	} {
+		h := c.Hash()
+		if other, dup := seen[h]; dup {
+			t.Errorf("%s hashes %s, like %s", name, h, other)
+		}
+		seen[h] = name
 	}
 }

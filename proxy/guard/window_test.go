@@ -244,3 +244,24 @@ riffle_guardrail_trips_total{guardrail="losing"} 0
 		t.Errorf("promlint: %s: %s", p.Metric, p.Text)
 	}
 }
+
+// TestWindowHoldsItsSpan follows the window's documented shape: the
+// window in force holds between Window minus one bucket width and Window
+// of history. With a 10s window (ten 1s buckets) a call 9.0s old must be
+// counted (9.0s is within 10s - 1s of history), and one 10.1s old must not.
+func TestWindowHoldsItsSpan(t *testing.T) {
+	w := newWindow(10*time.Second, 0)
+	t0 := time.Unix(1_800_000_000, 0) // on a bucket boundary
+	at := t0.Add(900 * time.Millisecond)
+	if !w.add(at, time.Millisecond, true) {
+		t.Fatal("call refused")
+	}
+	for _, tc := range []struct {
+		age  time.Duration
+		want uint64
+	}{{0, 1}, {5 * time.Second, 1}, {9 * time.Second, 1}, {10*time.Second + 100*time.Millisecond, 0}} {
+		if c := w.sum(at.Add(tc.age)); c.calls != tc.want || c.errors != tc.want {
+			t.Errorf("a call %v old: window counts %d calls, %d errors; want %d", tc.age, c.calls, c.errors, tc.want)
+		}
+	}
+}
