@@ -89,41 +89,13 @@ func TestAddEventsAccepts(t *testing.T) {
 		{Impression: im.ID, Item: "a1", Type: "click", Key: "k1", Time: t0.Add(time.Minute)},
 		{Impression: im.ID, Item: "a1", Type: "click", Key: "k2", Time: t0.Add(time.Minute)}, // another key: another event
 		{Impression: im.ID, Item: "b2", Type: "click"},                                       // no time: the store's clock
-		{Impression: im.ID, Item: "b2", Type: "click", Key: strings.Repeat("k", MaxKeyLen)},  // a key at the limit
 	}
 	mustAdd(t, st, evs...)
 	if got := countEvents(t, st, im.ID); got != len(evs) {
 		t.Errorf("%d events stored, want %d", got, len(evs))
 	}
-	if evs[4].Time != (time.Time{}) || evs[5].Time != (time.Time{}) {
+	if evs[4].Time != (time.Time{}) {
 		t.Error("AddEvents wrote into the caller's slice")
-	}
-}
-
-// TestKeyedAndUnkeyedAreDistinct follows Event.Key's contract: a keyed
-// event is a duplicate only of the same key, and an unkeyed one only of an
-// earlier unkeyed event with the same item and type. So a keyed click on
-// b1, then an unkeyed click on b1, are two clicks; a second unkeyed click
-// on b1 is the duplicate; and the challenger (team-draft: b1 is its pick)
-// scores 2, one per recorded click of weight 1.
-func TestKeyedAndUnkeyedAreDistinct(t *testing.T) {
-	st, _ := openTest(t, testOptions(newClock(t0)))
-	im := teamDraftImpression(t0, 1, 0)
-	recordAll(t, st, im)
-	keyed := Event{Impression: im.ID, Item: "b1", Type: "click", Key: "tap-1", Time: t0.Add(time.Minute)}
-	plain := Event{Impression: im.ID, Item: "b1", Type: "click", Time: t0.Add(2 * time.Minute)}
-	mustAdd(t, st, keyed)
-	if err := st.AddEvents(t.Context(), []Event{plain})[0]; err != nil {
-		t.Fatalf("unkeyed click after a keyed click on the same item: %v, want recorded", err)
-	}
-	if err := st.AddEvents(t.Context(), []Event{plain})[0]; !errors.Is(err, ErrDuplicate) {
-		t.Fatalf("second unkeyed click on the same item: %v, want ErrDuplicate", err)
-	}
-	if n, err := st.Finalize(t0.Add(time.Hour)); n != 1 || err != nil {
-		t.Fatalf("Finalize = %d, %v; want 1, nil", n, err)
-	}
-	if got, _ := readRecord(t, st, im.ID); got.Score.Challenger != 2 || got.Score.Incumbent != 0 {
-		t.Errorf("score %+v, want challenger 2, incumbent 0", got.Score)
 	}
 }
 

@@ -105,7 +105,7 @@ type exported struct {
 func TestExportContent(t *testing.T) {
 	st := exportFixture(t)
 	var buf bytes.Buffer
-	if err := st.Export(&buf, time.Time{}); err != nil {
+	if err := st.Export(t.Context(), &buf, time.Time{}); err != nil {
 		t.Fatal(err)
 	}
 	var lines []exported
@@ -154,7 +154,7 @@ func TestExportContent(t *testing.T) {
 		t.Errorf("open: %+v; want outcome open, no score or user, one event at slot 3", open)
 	}
 	var since bytes.Buffer
-	if err := st.Export(&since, t0.Add(30*time.Second)); err != nil {
+	if err := st.Export(t.Context(), &since, t0.Add(30*time.Second)); err != nil {
 		t.Fatal(err)
 	}
 	if n := bytes.Count(since.Bytes(), []byte("\n")); n != 2 || bytes.Contains(since.Bytes(), []byte(won.Impression)) {

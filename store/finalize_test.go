@@ -83,11 +83,6 @@ func TestFinalizeOutcomes(t *testing.T) {
 		{"balanced, lowest click sets k", balancedImpression, Rules{}, []ev{{"a1", "click"}, {"b2", "click"}}, merge.ChallengerWin, merge.Score{Incumbent: 1, Challenger: 2}},
 		// A click on a2 (slot 3, A's rank 2, not in B): k = 2.
 		{"balanced, k = 2 credits A", balancedImpression, Rules{}, []ev{{"a2", "click"}}, merge.IncumbentWin, merge.Score{Incumbent: 1}},
-		// A zero-weight view is no click, so it cannot set k: with a click
-		// on a1 and a view of b2 (B's rank 3), k stays 1 and only A earns.
-		// (Were the view a click, k = 3 would credit a1 to both: a tie.)
-		{"balanced, zero-weight event does not set k", balancedImpression, Rules{Events: map[string]float64{"view": 0, "click": 1}},
-			[]ev{{"a1", "click"}, {"b2", "view"}}, merge.IncumbentWin, merge.Score{Incumbent: 1}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

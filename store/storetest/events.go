@@ -26,6 +26,8 @@ func testWindows(t *testing.T, open Opener) {
 	}{
 		{"inside the window", on("b1", "click", time.Minute), nil},
 		{"at the window's last instant", on("b1", "purchase", 30*time.Minute), nil},
+		{"at the impression's own instant", on("b2", "click", 0), nil},
+		{"key at the length limit", store.Event{Impression: im.ID, Item: "a1", Type: "purchase", Time: T0, Key: strings.Repeat("k", store.MaxKeyLen)}, nil},
 		{"before the impression", on("a1", "click", -time.Second), store.ErrTooEarly},
 		{"after the window", on("a1", "click", 30*time.Minute+time.Nanosecond), store.ErrTooLate},
 		{"unknown impression", store.Event{Impression: ID(T0.Add(-time.Hour), 99), Item: "a1", Type: "click", Time: T0}, store.ErrUnknownImpression},

@@ -5,6 +5,7 @@ import (
 	"testing"
 	"time"
 
+	"riffle/merge"
 	"riffle/store"
 )
 
@@ -57,6 +58,59 @@ func testFinalisation(t *testing.T, open Opener) {
 			}
 			if a.Impressions != 1 || a.Interleaved != interleaved {
 				t.Errorf("impressions %d, interleaved %d; want 1, %d", a.Impressions, a.Interleaved, interleaved)
+			}
+		})
+	}
+}
+
+// Balanced is a balanced interleaving (Joachims 2002) at time at of
+// A = [a1 a2 a3] and B = [b1 a1 b2]: a1 (ranks 1 in A, 2 in B), b1 (-, 1),
+// a2 (2, -), b2 (-, 3), a3 (3, -).
+func Balanced(at time.Time, tag, user uint64) *store.Impression {
+	im := TeamDraft(at, tag, user)
+	im.Policy = "balanced"
+	im.Slots = []merge.Slot{
+		{Item: "a1", Team: merge.Incumbent, RankA: 1, RankB: 2},
+		{Item: "b1", Team: merge.Challenger, RankB: 1},
+		{Item: "a2", Team: merge.Incumbent, RankA: 2},
+		{Item: "b2", Team: merge.Challenger, RankB: 3},
+		{Item: "a3", Team: merge.Incumbent, RankA: 3},
+	}
+	return im
+}
+
+// testFinaliseBalanced checks that the store gives balanced's credit only
+// the events that weigh something. Balanced (in the form of Chapelle,
+// Joachims, Radlinski & Yue, ACM TOIS 2012, section 2): k is the better
+// rank of the lowest clicked item, and each side earns the clicks on
+// items it ranks within its top k.
+func testFinaliseBalanced(t *testing.T, open Opener) {
+	withView := store.Rules{Events: map[string]float64{"view": 0, "click": 1}}
+	cases := []struct {
+		name   string
+		events [][2]string
+		want   [4]int64
+	}{
+		// A click on a1 alone: k = 1; only A ranks a1 within 1.
+		{"top click alone", [][2]string{{"a1", "click"}}, outcomes(0, 1, 0, 0)},
+		// Clicks on a1 and b2 (B's rank 3): k = 3, so a1 credits both
+		// sides and b2 the challenger: 1 to 2.
+		{"lowest click sets k", [][2]string{{"a1", "click"}, {"b2", "click"}}, outcomes(0, 0, 1, 0)},
+		// A view (weight 0) of b2 is no click and cannot set k: k stays 1
+		// and the incumbent wins 1 to 0 (were it a click, k = 3: a tie).
+		{"zero-weight event does not set k", [][2]string{{"a1", "click"}, {"b2", "view"}}, outcomes(0, 1, 0, 0)},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			f := newFixture(t, open, withView, 0)
+			im := Balanced(T0, 1, 7)
+			f.record(im)
+			for i, e := range tc.events {
+				f.mustAdd(store.Event{Impression: im.ID, Item: e[0], Type: e[1], Time: T0.Add(time.Duration(i+1) * time.Second)})
+			}
+			f.finalize(T0.Add(30*time.Minute), 1)
+			if got := f.aggregate().Outcomes; got != tc.want {
+				t.Errorf("outcomes %v, want %v", got, tc.want)
 			}
 		})
 	}

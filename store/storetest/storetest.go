@@ -30,6 +30,7 @@ func Run(t *testing.T, open Opener) {
 	t.Run("Windows", func(t *testing.T) { testWindows(t, open) })
 	t.Run("Idempotency", func(t *testing.T) { testIdempotency(t, open) })
 	t.Run("Finalisation", func(t *testing.T) { testFinalisation(t, open) })
+	t.Run("FinaliseBalanced", func(t *testing.T) { testFinaliseBalanced(t, open) })
 	t.Run("FinaliseOnce", func(t *testing.T) { testFinaliseOnce(t, open) })
 	t.Run("UserSums", func(t *testing.T) { testUserSums(t, open) })
 	t.Run("Retention", func(t *testing.T) { testRetention(t, open) })
