@@ -42,6 +42,7 @@ const (
 	reasonRequestBody
 	reasonMerge
 	reasonClientGone
+	reasonRequestTimeout
 	numReasons
 )
 
@@ -51,6 +52,7 @@ func (r reason) String() string {
 		"challenger-timeout", "challenger-connect", "challenger-status", "challenger-body", "challenger-empty",
 		"incumbent-timeout", "incumbent-connect", "incumbent-status", "incumbent-body",
 		"incumbent-empty", "request-too-large", "request-body", "merge", "client-gone",
+		"request-timeout",
 	}[r]
 }
 
@@ -98,6 +100,6 @@ func outcomePairs() [][2]uint8 {
 	incumbentFailures := []reason{reasonIncumbentTimeout, reasonIncumbentConnect, reasonIncumbentStatus, reasonIncumbentBody}
 	add(outChallengerOnly, incumbentFailures...)
 	add(outFailed, incumbentFailures...)
-	add(outFailed, reasonRequestTooLarge, reasonRequestBody, reasonClientGone)
+	add(outFailed, reasonRequestTooLarge, reasonRequestBody, reasonClientGone, reasonRequestTimeout)
 	return pairs
 }

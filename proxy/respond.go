@@ -18,6 +18,8 @@ func readRequest(r *http.Request, x *exchange, limit int64) ([]byte, reason) {
 	n, err := x.req.ReadFrom(&x.lim)
 	x.lim.R = nil
 	switch {
+	case isReadTimeout(err):
+		return nil, reasonRequestTimeout
 	case err != nil:
 		return nil, reasonRequestBody
 	case n > limit:
@@ -58,6 +60,10 @@ func writeRequestError(w http.ResponseWriter, why reason, limit int64) {
 	if why == reasonRequestTooLarge {
 		writeError(w, http.StatusRequestEntityTooLarge, "", why.String(),
 			fmt.Sprintf("request body too large: the limit is %d bytes (max_body_bytes)", limit))
+		return
+	}
+	if why == reasonRequestTimeout {
+		writeError(w, http.StatusRequestTimeout, "", why.String(), "the request body did not arrive within read_body_timeout")
 		return
 	}
 	writeError(w, http.StatusBadRequest, "", why.String(), "the request body could not be read")

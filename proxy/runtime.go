@@ -7,6 +7,7 @@ import (
 	"net/http/httputil"
 	"net/url"
 	"strings"
+	"time"
 
 	"github.com/go-chi/chi/v5"
 
@@ -27,7 +28,8 @@ type runtime struct {
 	hedge           merge.Hedge
 	ramp            float64 // experiment.ramp, used when there is no Gate
 	maxBody         int64
-	inFlight        int64 // backend_bytes_in_flight, set on the server's budget by Apply
+	inFlight        int64         // backend_bytes_in_flight, set on the server's budget by Apply
+	readBody        time.Duration // read_body_timeout
 	serveChallenger bool
 	user            userSource
 }
@@ -61,6 +63,10 @@ func (s *Server) build(cfg *config.Config) (*runtime, error) {
 	rt.chal = buildBackend("challenger", cfg.Challenger, s.chalM, bad)
 	rt.inc.maxBody, rt.chal.maxBody = cfg.MaxBackendBytes, cfg.MaxBackendBytes
 	rt.chal.strict = true
+	rt.readBody = cfg.ReadBodyTimeout
+	if rt.readBody <= 0 {
+		rt.readBody = config.DefaultReadBodyTimeout
+	}
 	rt.inFlight = cfg.BackendBytesInFlight
 	if rt.inFlight <= 0 {
 		rt.inFlight = config.DefaultBackendInFlight
@@ -213,6 +219,11 @@ func (rt *runtime) passThrough() *httputil.ReverseProxy {
 		BufferPool: &s.copyBufs,
 		ErrorLog:   slog.NewLogLogger(s.log.Handler(), slog.LevelWarn),
 		ErrorHandler: func(w http.ResponseWriter, r *http.Request, err error) {
+			if isReadTimeout(err) {
+				writeError(w, http.StatusRequestTimeout, "", reasonRequestBody.String(),
+					"the request body did not arrive within read_body_timeout")
+				return
+			}
 			s.log.Warn("pass-through to the incumbent failed", "path", r.URL.Path, "err", err)
 			writeError(w, http.StatusBadGateway, "incumbent", "incumbent-connect", "incumbent unreachable: "+err.Error())
 		},

@@ -90,7 +90,9 @@ func New(o Options) (*Server, error) {
 // when it arrives, to its end.
 func (s *Server) Handler() http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
-		s.rt.Load().router.ServeHTTP(w, r)
+		rt := s.rt.Load()
+		bodyDeadline(w, r, rt.readBody)
+		rt.router.ServeHTTP(w, r)
 	})
 }
 

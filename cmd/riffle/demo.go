@@ -297,8 +297,9 @@ func printProgress(w io.Writer, elapsed time.Duration, t *shop.Tally, admin stri
 func printSummary(w io.Writer, t *shop.Tally, st demoStatus) {
 	fmt.Fprintf(w, "\nwhat riffle saw\n")
 	fmt.Fprintf(w, "  impressions        %d (%d interleaved, %.1f%%)\n", st.Impressions, st.Interleaved, pct(st.Interleaved, st.Impressions))
-	fmt.Fprintf(w, "  shopper events     %d clicks, %d purchases; feedback accepted %d, rejected %d; request errors %d\n",
-		t.Clicks.Load(), t.Purchases.Load(), t.FeedbackAccepted.Load(), t.FeedbackRejected.Load(), t.Errors.Load())
+	fmt.Fprintf(w, "  shopper events     %d clicks, %d purchases; feedback accepted %d, rejected %d, unanswered %d; request errors %d\n",
+		t.Clicks.Load(), t.Purchases.Load(), t.FeedbackAccepted.Load(), t.FeedbackRejected.Load(),
+		t.FeedbackUnanswered.Load(), t.Errors.Load())
 	fmt.Fprintf(w, "  outcomes           challenger %d, incumbent %d, tie %d (with feedback %d)\n",
 		st.Wins.Challenger, st.Wins.Incumbent, st.Wins.Tie, st.WithFeedback)
 	fmt.Fprintf(w, "  Delta              %+.4f, interval [%+.4f, %+.4f], always-valid p %.4g, design effect %.2f\n",

@@ -10,9 +10,9 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"log/slog"
 	"net/http"
+	"os"
 	"time"
 
 	"github.com/prometheus/client_golang/prometheus"
@@ -29,14 +29,38 @@ type EventStore interface {
 
 var _ EventStore = (*store.Store)(nil)
 
-// DefaultMaxBodyBytes is the body limit when Options.MaxBodyBytes is 0.
-const DefaultMaxBodyBytes = 1 << 20
+// Defaults for the zero Options fields.
+const (
+	// DefaultMaxBodyBytes is the body limit when Options.MaxBodyBytes is 0.
+	DefaultMaxBodyBytes = 1 << 20
+	// DefaultClockSkew is the clock skew allowed when Options.ClockSkew
+	// is 0.
+	DefaultClockSkew = 30 * time.Second
+	// DefaultStoreWait bounds the wait for the store when
+	// Options.StoreWait is 0.
+	DefaultStoreWait = 5 * time.Second
+	// MaxListed is how many rejections an answer lists one by one; the
+	// counts by reason cover them all.
+	MaxListed = 100
+)
 
 // Options configures the handler.
 type Options struct {
 	// MaxBodyBytes limits the request body; a larger body gets 413.
 	// Zero means DefaultMaxBodyBytes (1 MiB).
 	MaxBodyBytes int64
+	// ClockSkew is how far before its impression an event may be stamped
+	// and still count, as at the impression's time. Zero means
+	// DefaultClockSkew (30s); negative allows none.
+	ClockSkew time.Duration
+	// StoreWait bounds the wait for the store to make a request's events
+	// durable; past it the answer is 503 with Retry-After. Zero means
+	// DefaultStoreWait (5s).
+	StoreWait time.Duration
+	// Live, when set, is called on every request for the three settings
+	// above (a config reload changes them); its zero fields get the
+	// defaults as above. When nil the fields above apply.
+	Live func() Options
 	// Now stamps events sent without a time. Default time.Now.
 	Now func() time.Time
 	// Registerer receives riffle_feedback_events_accepted_total and
@@ -47,7 +71,10 @@ type Options struct {
 	Logger *slog.Logger
 }
 
-// Response is the JSON answer.
+// Response is the JSON answer. Rejected lists at most MaxListed
+// rejections (the earliest lines of those found); RejectedTotal and
+// RejectedByReason count every one, and Truncated says the list is short
+// of them.
 type Response struct {
 	// Accepted counts events recorded by this request.
 	Accepted int `json:"accepted"`
@@ -56,7 +83,14 @@ type Response struct {
 	Duplicates int `json:"duplicates"`
 	// Rejected lists the lines that were not recorded and why.
 	Rejected []Rejection `json:"rejected"`
-	// Error says why the request as a whole failed (400, 413, 503).
+	// RejectedTotal counts every rejected line.
+	RejectedTotal int `json:"rejected_total"`
+	// RejectedByReason counts the rejected lines by reason, the reason
+	// label values of riffle_feedback_events_rejected_total.
+	RejectedByReason map[string]int `json:"rejected_by_reason"`
+	// Truncated is true when Rejected lists fewer than RejectedTotal.
+	Truncated bool `json:"truncated"`
+	// Error says why the request as a whole failed (400, 408, 413, 503).
 	Error string `json:"error,omitempty"`
 }
 
@@ -68,12 +102,26 @@ type Rejection struct {
 	Error string `json:"error"`
 }
 
+// reject counts one rejected line with its reason and lists it while the
+// list has room.
+func (r *Response) reject(line int, reason, msg string) {
+	r.RejectedTotal++
+	if r.RejectedByReason == nil {
+		r.RejectedByReason = map[string]int{}
+	}
+	r.RejectedByReason[reason]++
+	if len(r.Rejected) < MaxListed {
+		r.Rejected = append(r.Rejected, Rejection{Line: line, Error: msg})
+	}
+	r.Truncated = r.RejectedTotal > len(r.Rejected)
+}
+
 type handler struct {
-	st  EventStore
-	max int64
-	now func() time.Time
-	log *slog.Logger
-	m   *metrics
+	st   EventStore
+	opts Options
+	now  func() time.Time
+	log  *slog.Logger
+	m    *metrics
 }
 
 // New returns the POST /feedback handler over st. It panics if st is nil,
@@ -82,10 +130,7 @@ func New(st EventStore, o Options) http.Handler {
 	if st == nil {
 		panic("feedback.New: nil EventStore")
 	}
-	h := &handler{st: st, max: o.MaxBodyBytes, now: o.Now, log: o.Logger}
-	if h.max <= 0 {
-		h.max = DefaultMaxBodyBytes
-	}
+	h := &handler{st: st, opts: o, now: o.Now, log: o.Logger}
 	if h.now == nil {
 		h.now = time.Now
 	}
@@ -96,6 +141,25 @@ func New(st EventStore, o Options) http.Handler {
 	return h
 }
 
+// settings returns the limits in force, defaults filled in.
+func (h *handler) settings() Options {
+	o := h.opts
+	if o.Live != nil {
+		o = o.Live()
+	}
+	if o.MaxBodyBytes <= 0 {
+		o.MaxBodyBytes = DefaultMaxBodyBytes
+	}
+	if o.ClockSkew == 0 {
+		o.ClockSkew = DefaultClockSkew
+	}
+	o.ClockSkew = max(o.ClockSkew, 0)
+	if o.StoreWait <= 0 {
+		o.StoreWait = DefaultStoreWait
+	}
+	return o
+}
+
 // ServeHTTP reads, parses, records, and answers.
 func (h *handler) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 	if r.Method != http.MethodPost {
@@ -103,82 +167,111 @@ func (h *handler) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 		answer(w, http.StatusMethodNotAllowed, &Response{Error: "use POST"})
 		return
 	}
-	body, err := io.ReadAll(http.MaxBytesReader(w, r.Body, h.max))
-	if err != nil {
-		var tooBig *http.MaxBytesError
-		if errors.As(err, &tooBig) {
-			h.m.rejected(reasonTooLarge, 1)
-			answer(w, http.StatusRequestEntityTooLarge, &Response{Error: fmt.Sprintf("body over the %d-byte limit", h.max)})
-			return
-		}
-		answer(w, http.StatusBadRequest, &Response{Error: fmt.Sprintf("read body: %v", err)})
-		return
-	}
-	lines := parseBody(body, h.now())
-	resp, status := h.record(r.Context(), lines)
-	answer(w, status, resp)
-}
-
-// record sends the parsed lines to the store and builds the answer.
-func (h *handler) record(ctx context.Context, lines []line) (*Response, int) {
+	o := h.settings()
 	resp := &Response{Rejected: []Rejection{}}
-	evs := make([]store.Event, 0, len(lines))
-	at := make([]int, 0, len(lines)) // index into lines of each event
-	for i, l := range lines {
+	var evs []store.Event
+	var at []int // line number of each event
+	now := h.now()
+	err := scanBody(http.MaxBytesReader(w, r.Body, o.MaxBodyBytes), now, func(l line) {
+		if l.err == nil {
+			l.err = clampSkew(&l.ev, o.ClockSkew)
+		}
 		if l.err != nil {
 			var pe *parseError
 			errors.As(l.err, &pe)
-			h.m.rejected(pe.reason, 1)
-			resp.Rejected = append(resp.Rejected, Rejection{Line: l.n, Error: l.err.Error()})
-			continue
+			resp.reject(l.n, pe.reason, l.err.Error())
+			return
 		}
-		evs = append(evs, l.ev)
-		at = append(at, i)
+		evs, at = append(evs, l.ev), append(at, l.n)
+	})
+	if status, msg := h.readFailure(err, o.MaxBodyBytes); status != 0 {
+		answer(w, status, &Response{Error: msg})
+		return
+	}
+	status := h.record(r.Context(), o.StoreWait, evs, at, resp)
+	answer(w, status, resp)
+}
+
+// readFailure turns the body reader's error into the answer for the whole
+// request; status 0 means the body was read.
+func (h *handler) readFailure(err error, limit int64) (int, string) {
+	var tooBig *http.MaxBytesError
+	switch {
+	case err == nil:
+		return 0, ""
+	case errors.As(err, &tooBig):
+		h.m.rejected(reasonTooLarge, 1)
+		return http.StatusRequestEntityTooLarge, fmt.Sprintf("body over the %d-byte limit", limit)
+	case errors.Is(err, os.ErrDeadlineExceeded):
+		return http.StatusRequestTimeout, "the body did not arrive within read_body_timeout; nothing was recorded"
+	}
+	return http.StatusBadRequest, fmt.Sprintf("read body: %v", err)
+}
+
+// record sends the events to the store, waiting at most wait, and fills
+// in the answer; it returns its status.
+func (h *handler) record(ctx context.Context, wait time.Duration, evs []store.Event, at []int, resp *Response) int {
+	for reason, n := range resp.RejectedByReason {
+		h.m.rejected(reason, n)
 	}
 	if len(evs) == 0 {
 		resp.Error = "no event could be read"
-		if len(lines) == 0 {
+		if resp.RejectedTotal == 0 {
 			resp.Error = "empty body: send one JSON event or NDJSON lines"
 		}
-		return resp, http.StatusBadRequest
+		return http.StatusBadRequest
 	}
-	errs := h.st.AddEvents(ctx, evs)
+	sctx, cancel := context.WithTimeout(ctx, wait)
+	errs := h.st.AddEvents(sctx, evs)
+	cancel()
 	logged := false
 	for j, err := range errs {
 		reason := reasonOf(err)
-		switch reason {
-		case "":
+		switch {
+		case reason == "":
 			resp.Accepted++
 			h.m.accepted(evs[j].Type)
-		case reasonDuplicate:
+		case reason == reasonDuplicate:
 			resp.Duplicates++
 			h.m.rejected(reason, 1)
-		case reasonStore:
-			h.m.rejected(reason, 1)
-			switch {
-			case logged:
-			case ctx.Err() != nil:
-				// The client hung up first; it got no 202, so it retries.
+		case reason == reasonStore && ctx.Err() != nil:
+			// The client hung up first; it got no 202, so it retries.
+			h.m.rejected(reasonClientGone, 1)
+			if !logged {
 				h.log.Info("feedback: client went away before its events were acknowledged", "err", err)
-			default:
-				h.log.Error("feedback: store failed; events not recorded", "err", err)
 			}
+			logged = true
+		case reason == reasonStore:
+			err = h.storeFailure(err, wait, !logged)
 			logged = true
 			resp.Error = "events could not be stored; retry: " + err.Error()
 			if errors.Is(err, store.ErrUnavailable) {
 				resp.Error = "store unavailable: no event of this request was recorded; retry after the Retry-After delay: " + err.Error()
 			}
-			resp.Rejected = append(resp.Rejected, Rejection{Line: lines[at[j]].n, Error: err.Error()})
-		default:
+			resp.reject(at[j], reason, err.Error())
 			h.m.rejected(reason, 1)
-			resp.Rejected = append(resp.Rejected, Rejection{Line: lines[at[j]].n, Error: err.Error()})
+		default:
+			resp.reject(at[j], reason, err.Error())
+			h.m.rejected(reason, 1)
 		}
 	}
 	sortRejections(resp.Rejected)
 	if resp.Error != "" {
-		return resp, http.StatusServiceUnavailable
+		return http.StatusServiceUnavailable
 	}
-	return resp, http.StatusAccepted
+	return http.StatusAccepted
+}
+
+// storeFailure logs a store failure once per request and names a wait
+// that ran out as the store being unavailable.
+func (h *handler) storeFailure(err error, wait time.Duration, log bool) error {
+	if errors.Is(err, context.DeadlineExceeded) && !errors.Is(err, store.ErrUnavailable) {
+		err = fmt.Errorf("%w: no answer within feedback.store_wait (%v): %w", store.ErrUnavailable, wait, err)
+	}
+	if log {
+		h.log.Error("feedback: store failed; events not recorded", "err", err)
+	}
+	return err
 }
 
 // answer writes resp as JSON with status.

@@ -177,7 +177,9 @@ func TestRejectReasons(t *testing.T) {
 		}, nil},
 		{"item not shown", reasonItemNotShown, "item not shown", func(f *fixture) string { return f.ev("hose", "click", "") }, nil},
 		{"unknown event", reasonUnknownEvent, "unknown event type", func(f *fixture) string { return f.ev("hoe", "wishlist", "") }, nil},
-		{"too early", reasonTooEarly, "before its impression", func(f *fixture) string { return f.ev("hoe", "click", `,"time":"2026-04-01T11:59:59Z"`) }, nil},
+		{"too early", reasonTooEarly, "is 1m0s before its impression (served at 2026-04-01T12:00:00Z), more than the allowed clock skew of 30s",
+			func(f *fixture) string { return f.ev("hoe", "click", `,"time":"2026-04-01T11:59:00Z"`) }, nil},
+		{"zero time", reasonInvalid, "the zero time, a missing time", func(f *fixture) string { return f.ev("hoe", "click", `,"time":"0001-01-01T00:00:00Z"`) }, nil},
 		{"too late", reasonTooLate, "after the attribution window", func(f *fixture) string { return f.ev("hoe", "click", `,"time":"2026-04-01T12:30:01Z"`) }, nil},
 		{"final", reasonTooLate, "already final", func(f *fixture) string { return f.ev("hoe", "click", `,"time":"2026-04-01T12:10:00Z"`) },
 			func(t *testing.T, f *fixture) {

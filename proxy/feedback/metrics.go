@@ -22,6 +22,7 @@ const (
 	reasonDuplicate         = "duplicate"          // store.ErrDuplicate (acknowledged)
 	reasonTooLarge          = "too-large"          // a body over the limit (counted once)
 	reasonStore             = "store"              // the store failed: not durable
+	reasonClientGone        = "client-gone"        // the client hung up before the answer
 )
 
 // reasonOf classifies one AddEvents result; "" means recorded.
@@ -64,7 +65,7 @@ func newMetrics(reg prometheus.Registerer, log *slog.Logger) *metrics {
 		}, []string{"reason"}),
 	}
 	for _, r := range []string{reasonMalformed, reasonInvalid, reasonUnknownImpression, reasonItemNotShown,
-		reasonUnknownEvent, reasonTooEarly, reasonTooLate, reasonDuplicate, reasonTooLarge, reasonStore} {
+		reasonUnknownEvent, reasonTooEarly, reasonTooLate, reasonDuplicate, reasonTooLarge, reasonStore, reasonClientGone} {
 		m.rejectedVec.WithLabelValues(r)
 	}
 	if reg != nil {

@@ -46,28 +46,11 @@ type line struct {
 	err error
 }
 
-// parseBody splits body into events: one JSON object (which may span
-// lines), or NDJSON with one object per line. Blank lines are skipped. An
-// event without a time gets now.
+// parseBody splits body into events as scanBody does and returns them
+// all; the tests and the fuzz target use it.
 func parseBody(body []byte, now time.Time) []line {
-	trimmed := bytes.TrimSpace(body)
-	if len(trimmed) == 0 {
-		return nil
-	}
-	if trimmed[0] == '{' && bytes.IndexByte(trimmed, '\n') >= 0 && json.Valid(trimmed) {
-		lead := len(body) - len(bytes.TrimLeft(body, " \t\r\n"))
-		ev, err := parseLine(trimmed, now)
-		return []line{{n: 1 + bytes.Count(body[:lead], []byte("\n")), ev: ev, err: err}}
-	}
 	var lines []line
-	for i, raw := range bytes.Split(body, []byte("\n")) {
-		raw = bytes.TrimSpace(raw)
-		if len(raw) == 0 {
-			continue
-		}
-		ev, err := parseLine(raw, now)
-		lines = append(lines, line{n: i + 1, ev: ev, err: err})
-	}
+	_ = scanBody(bytes.NewReader(body), now, func(l line) { lines = append(lines, l) })
 	return lines
 }
 
@@ -126,6 +109,9 @@ func toEvent(w *wireEvent, now time.Time) (store.Event, error) {
 	if w.Time != nil {
 		if ev.Time, err = parseTime(*w.Time); err != nil {
 			return ev, invalid(`"time" %q is not an RFC 3339 time (e.g. 2026-04-01T12:00:00Z)`, *w.Time)
+		}
+		if ev.Time.IsZero() {
+			return ev, invalid(`"time" %q is the zero time, a missing time: send the event's time, or no "time" to have it stamped on receipt`, *w.Time)
 		}
 	}
 	if w.Key != nil {
@@ -190,4 +176,22 @@ func jsonKind(c byte) string {
 		return "null"
 	}
 	return "number"
+}
+
+// clampSkew applies the allowed clock skew to an event stamped before its
+// impression (whose time its id carries): within skew it counts as at the
+// impression's time, further before it is refused, saying by how much.
+func clampSkew(ev *store.Event, skew time.Duration) error {
+	served := ev.Impression.Time()
+	early := served.Sub(ev.Time)
+	switch {
+	case early <= 0:
+		return nil
+	case early <= skew:
+		ev.Time = served
+		return nil
+	}
+	return &parseError{reason: reasonTooEarly, msg: fmt.Sprintf(
+		"%s at %s is %v before its impression (served at %s), more than the allowed clock skew of %v (feedback.clock_skew): %v",
+		ev.Type, ev.Time.UTC().Format(time.RFC3339Nano), early, served.UTC().Format(time.RFC3339Nano), skew, store.ErrTooEarly)}
 }

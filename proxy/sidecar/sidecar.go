@@ -112,7 +112,7 @@ func (s *Sidecar) build(path string, cfg *config.Config) error {
 	s.exp = newExperiment(s.store, s.reg)
 	s.reloader = config.NewReloader(path, cfg, s.apply, config.ReloaderOptions{Registerer: s.reg, Logger: s.log})
 	s.guard = guard.New(guardOptions(cfg, s))
-	fb := feedback.New(s.store, feedback.Options{MaxBodyBytes: cfg.MaxBodyBytes, Registerer: s.reg, Logger: s.log})
+	fb := feedback.New(s.store, feedback.Options{Live: s.feedbackLimits, Registerer: s.reg, Logger: s.log})
 	px, err := proxy.New(proxy.Options{
 		Config: cfg, Sink: s.store, Gate: s.guard, Observer: s.guard, Feedback: fb,
 		Registerer: s.reg, Logger: s.log,
@@ -126,6 +126,12 @@ func (s *Sidecar) build(path string, cfg *config.Config) error {
 	s.exp.guard = s.guard
 	s.exp.page = &statusPage{meter: status.NewMeter(s.reg), store: s.store, current: s.reloader.Current}
 	return nil
+}
+
+// feedbackLimits are POST /feedback's settings in the config in force.
+func (s *Sidecar) feedbackLimits() feedback.Options {
+	cfg := s.reloader.Current()
+	return feedback.Options{MaxBodyBytes: cfg.MaxBodyBytes, ClockSkew: cfg.Feedback.ClockSkew, StoreWait: cfg.Feedback.StoreWait}
 }
 
 // apply makes a validated config live in every part; the data plane goes
@@ -154,9 +160,18 @@ func (s *Sidecar) listen(cfg *config.Config) error {
 		_ = s.dataLn.Close()
 		return fmt.Errorf("sidecar: admin listen %s: %w", cfg.Admin, err)
 	}
-	s.data = &http.Server{Handler: s.proxy.Handler(), ReadHeaderTimeout: 10 * time.Second, IdleTimeout: 2 * time.Minute}
-	s.admin = &http.Server{Handler: s.adminHandler(cfg), ReadHeaderTimeout: 10 * time.Second}
+	s.data = &http.Server{Handler: s.proxy.Handler(), ReadHeaderTimeout: headerTimeout(cfg), IdleTimeout: 2 * time.Minute}
+	s.admin = &http.Server{Handler: s.adminHandler(cfg), ReadHeaderTimeout: headerTimeout(cfg)}
 	return nil
+}
+
+// headerTimeout is read_header_timeout, or its default on a config built
+// in code.
+func headerTimeout(cfg *config.Config) time.Duration {
+	if cfg.ReadHeaderTimeout > 0 {
+		return cfg.ReadHeaderTimeout
+	}
+	return config.DefaultReadHeaderTimeout
 }
 
 // DataAddr and AdminAddr return the bound addresses.

@@ -42,6 +42,10 @@ type Tally struct {
 	Clicks, Purchases             atomic.Int64
 	FeedbackAccepted              atomic.Int64
 	FeedbackRejected              atomic.Int64
+	// FeedbackUnanswered counts events whose request got no answer (the
+	// demo stopping mid-request, riffle down): riffle counts those as
+	// client-gone, neither accepted nor rejected.
+	FeedbackUnanswered atomic.Int64
 }
 
 type shopper struct {
@@ -182,16 +186,19 @@ func (cr Crowd) report(ctx context.Context, events []byte, t *Tally) {
 	req.Header.Set("Content-Type", "application/x-ndjson")
 	resp, err := cr.Client.Do(req)
 	if err != nil {
+		t.FeedbackUnanswered.Add(int64(bytes.Count(events, []byte("\n"))))
 		return
 	}
 	defer resp.Body.Close()
 	var ack struct {
-		Accepted int               `json:"accepted"`
-		Rejected []json.RawMessage `json:"rejected"`
+		Accepted      int `json:"accepted"`
+		RejectedTotal int `json:"rejected_total"`
 	}
 	if err := json.NewDecoder(io.LimitReader(resp.Body, 1<<20)).Decode(&ack); err == nil {
 		t.FeedbackAccepted.Add(int64(ack.Accepted))
-		t.FeedbackRejected.Add(int64(len(ack.Rejected)))
+		t.FeedbackRejected.Add(int64(ack.RejectedTotal))
+	} else {
+		t.FeedbackUnanswered.Add(int64(bytes.Count(events, []byte("\n"))))
 	}
 }
 
