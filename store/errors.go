@@ -48,3 +48,7 @@ var (
 // recorded; the caller may retry (POST /feedback answers 503 with
 // Retry-After).
 var ErrUnavailable = errors.New("store unavailable")
+
+// ErrUnknownPolicy means an impression names a policy this riffle cannot
+// resolve; the impression is set aside, never counted.
+var ErrUnknownPolicy = errors.New("unknown policy")

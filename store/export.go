@@ -9,6 +9,8 @@ import (
 	"time"
 
 	bolt "go.etcd.io/bbolt"
+
+	"riffle/merge"
 )
 
 // exportLine is one impression in Export's NDJSON.
@@ -98,39 +100,69 @@ func (s *Store) Export(ctx context.Context, w io.Writer, since time.Time) error 
 }
 
 func exportOf(tx *bolt.Tx, rec *record) (*exportLine, error) {
-	l := &exportLine{
-		Impression: rec.ID.String(),
-		Time:       rec.Time.Format(time.RFC3339Nano),
-		Experiment: rec.Experiment,
-		Policy:     rec.Policy,
-		Seed:       hex16(rec.Seed),
-		Fallback:   rec.Fallback,
-		Slots:      make([]exportSlot, len(rec.Slots)),
-		Events:     []exportEvent{},
-		Outcome:    "open",
-	}
-	if rec.User != 0 {
-		l.User = hex16(rec.User)
-	}
-	for i, s := range rec.Slots {
-		l.Slots[i] = exportSlot{Item: s.Item, Team: s.Team.String(), RankIncumbent: s.RankA,
-			RankChallenger: s.RankB, PIncumbent: s.PA, PChallenger: s.PB}
-	}
+	var evs []Event
 	err := eachEvent(tx, rec.ID, func(_ []byte, ev Event) error {
-		l.Events = append(l.Events, exportEvent{Item: ev.Item, Event: ev.Type,
-			Time: ev.Time.Format(time.RFC3339Nano), Key: ev.Key, Slot: slotOf(rec.Slots, ev.Item) + 1})
+		evs = append(evs, ev)
 		return nil
 	})
 	if err != nil {
 		return nil, err
 	}
+	var fin *Final
 	if rec.Final {
-		l.Outcome = rec.Outcome.String()
-		if rec.Interleaved() {
-			l.Score = &exportScore{Incumbent: rec.Score.Incumbent, Challenger: rec.Score.Challenger}
+		fin = &Final{Outcome: rec.Outcome, Score: rec.Score}
+	}
+	return exportLineOf(&rec.Impression, evs, fin), nil
+}
+
+// Final is a finalised impression's result.
+type Final struct {
+	Outcome merge.Outcome
+	Score   merge.Score
+}
+
+// AppendExportLine appends Export's NDJSON line for im (with its events,
+// in the order received, and its result; nil fin means still open) and a
+// newline to b. Every store's Export writes through it, so the format is
+// one.
+func AppendExportLine(b []byte, im *Impression, evs []Event, fin *Final) ([]byte, error) {
+	line, err := json.Marshal(exportLineOf(im, evs, fin))
+	if err != nil {
+		return b, fmt.Errorf("impression %s: %w", im.ID, err)
+	}
+	return append(append(b, line...), '\n'), nil
+}
+
+func exportLineOf(im *Impression, evs []Event, fin *Final) *exportLine {
+	l := &exportLine{
+		Impression: im.ID.String(),
+		Time:       im.Time.Format(time.RFC3339Nano),
+		Experiment: im.Experiment,
+		Policy:     im.Policy,
+		Seed:       hex16(im.Seed),
+		Fallback:   im.Fallback,
+		Slots:      make([]exportSlot, len(im.Slots)),
+		Events:     make([]exportEvent, 0, len(evs)),
+		Outcome:    "open",
+	}
+	if im.User != 0 {
+		l.User = hex16(im.User)
+	}
+	for i, s := range im.Slots {
+		l.Slots[i] = exportSlot{Item: s.Item, Team: s.Team.String(), RankIncumbent: s.RankA,
+			RankChallenger: s.RankB, PIncumbent: s.PA, PChallenger: s.PB}
+	}
+	for _, ev := range evs {
+		l.Events = append(l.Events, exportEvent{Item: ev.Item, Event: ev.Type,
+			Time: ev.Time.Format(time.RFC3339Nano), Key: ev.Key, Slot: slotOf(im.Slots, ev.Item) + 1})
+	}
+	if fin != nil {
+		l.Outcome = fin.Outcome.String()
+		if im.Interleaved() {
+			l.Score = &exportScore{Incumbent: fin.Score.Incumbent, Challenger: fin.Score.Challenger}
 		}
 	}
-	return l, nil
+	return l
 }
 
 func hex16(v uint64) string { return fmt.Sprintf("%016x", v) }

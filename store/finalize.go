@@ -33,7 +33,7 @@ func (s *Store) Finalize(ctx context.Context, now time.Time) (int, error) {
 		return 0, s.unwritable()
 	}
 	rules := s.rules.Load()
-	policies := make(map[string]merge.Policy)
+	scorer := newScorer(rules)
 	cutoff := now.Add(-rules.Window)
 	if !s.anyDue(cutoff) {
 		return 0, nil // no write transaction, no fsync, when nothing is due
@@ -43,7 +43,7 @@ func (s *Store) Finalize(ctx context.Context, now time.Time) (int, error) {
 		if err := ctx.Err(); err != nil {
 			return total, fmt.Errorf("store %s: finalise: %w", s.path, err)
 		}
-		n, more, err := s.finalizeChunk(cutoff, rules, policies)
+		n, more, err := s.finalizeChunk(cutoff, scorer)
 		total += n
 		if err != nil || !more {
 			return total, err
@@ -53,7 +53,7 @@ func (s *Store) Finalize(ctx context.Context, now time.Time) (int, error) {
 
 // finalizeChunk finalises up to chunk impressions served at or before
 // cutoff and reports whether more may be waiting.
-func (s *Store) finalizeChunk(cutoff time.Time, rules *Rules, policies map[string]merge.Policy) (int, bool, error) {
+func (s *Store) finalizeChunk(cutoff time.Time, scorer *Scorer) (int, bool, error) {
 	var n int
 	var more bool
 	var parked []error
@@ -65,7 +65,7 @@ func (s *Store) finalizeChunk(cutoff time.Time, rules *Rules, policies map[strin
 		more = len(due) == chunk
 		parked = parked[:0]
 		for _, k := range due {
-			o, exp, err := s.finalizeOne(tx, k, rules, policies)
+			o, exp, err := s.finalizeOne(tx, k, scorer)
 			var pe *parkError
 			if errors.As(err, &pe) {
 				if err := park(tx, k, pe); err != nil {
@@ -149,7 +149,7 @@ func dueKeys(open *bolt.Bucket, cutoff time.Time) [][]byte {
 
 // finalizeOne finalises the impression behind open-index key k. It returns
 // the outcome and, for an interleaved impression, its experiment.
-func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[string]merge.Policy) (merge.Outcome, string, error) {
+func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, scorer *Scorer) (merge.Outcome, string, error) {
 	if len(k) != 8+len(ID{}) {
 		return 0, "", fmt.Errorf("open index key %x: %w", k, ErrCorrupt)
 	}
@@ -159,7 +159,11 @@ func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[st
 	if err != nil {
 		return 0, "", &parkError{err}
 	}
-	clicks, had, err := clicksOf(tx, &rec, rules)
+	var evs []Event
+	err = eachEvent(tx, rec.ID, func(_ []byte, ev Event) error {
+		evs = append(evs, ev)
+		return nil
+	})
 	if errors.Is(err, ErrCorrupt) {
 		return 0, "", &parkError{err}
 	}
@@ -168,12 +172,10 @@ func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[st
 	}
 	exp := ""
 	if rec.Interleaved() {
-		p, err := policyFor(rec.Policy, rules, policies)
+		rec.Score, rec.Outcome, err = scorer.Score(&rec.Impression, evs)
 		if err != nil {
-			return 0, "", &parkError{fmt.Errorf("impression %s: %w", rec.ID, err)}
+			return 0, "", &parkError{err}
 		}
-		rec.Score = p.Credit(rec.Slots, clicks)
-		rec.Outcome = merge.DecideFor(p, rec.Score, had, rec.Seed)
 		if err := addOutcome(tx, &rec.Impression, rec.Outcome); err != nil {
 			return 0, "", err
 		}
@@ -187,37 +189,4 @@ func (s *Store) finalizeOne(tx *bolt.Tx, k []byte, rules *Rules, policies map[st
 		return 0, "", fmt.Errorf("finalise impression %s: %w", rec.ID, err)
 	}
 	return rec.Outcome, exp, nil
-}
-
-// clicksOf turns an impression's events into weighted clicks and reports
-// whether it had any event. An event whose type weighs 0 (or was dropped
-// from the rules since it was accepted) is no click, so it cannot move
-// balanced's k, but it still makes the impression one with feedback.
-func clicksOf(tx *bolt.Tx, rec *record, rules *Rules) ([]merge.Click, bool, error) {
-	var clicks []merge.Click
-	had := false
-	err := eachEvent(tx, rec.ID, func(_ []byte, ev Event) error {
-		had = true
-		pos := slotOf(rec.Slots, ev.Item)
-		if pos < 0 {
-			return fmt.Errorf("event on %s names item %q not in the impression: %w", rec.ID, ev.Item, ErrCorrupt)
-		}
-		if w := rules.Events[ev.Type] * merge.DebiasWeight(pos+1, rules.Eta); w > 0 {
-			clicks = append(clicks, merge.Click{Pos: pos, Weight: w})
-		}
-		return nil
-	})
-	return clicks, had, err
-}
-
-func policyFor(name string, rules *Rules, cache map[string]merge.Policy) (merge.Policy, error) {
-	if p, ok := cache[name]; ok {
-		return p, nil
-	}
-	p, err := rules.Policy(name)
-	if err != nil {
-		return nil, fmt.Errorf("resolve policy %q: %w", name, err)
-	}
-	cache[name] = p
-	return p, nil
 }

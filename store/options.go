@@ -127,3 +127,8 @@ func (o *Options) withDefaults() (Options, error) {
 	c.Rules = r
 	return c, nil
 }
+
+// DefaultOptions returns o with every zero field defaulted and checked, as
+// Open applies them; other store implementations use it so that one
+// option means the same everywhere.
+func DefaultOptions(o Options) (Options, error) { return o.withDefaults() }

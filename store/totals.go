@@ -24,9 +24,20 @@ var (
 // recentSpan is how far back the recent counts reach, and minuteKeep how
 // long per-minute counts are kept.
 const (
-	recentSpan = time.Hour
-	minuteKeep = 2 * time.Hour
+	recentSpan = RecentSpan
+	minuteKeep = MinuteKeep
 )
+
+// RecentSpan is how far back an Aggregate's recent counts reach, and
+// MinuteKeep how long a store keeps the per-minute counts behind them.
+const (
+	RecentSpan = time.Hour
+	MinuteKeep = 2 * time.Hour
+)
+
+// Minute returns the Unix minute of t's nanoseconds: the key of the
+// per-minute counts.
+func Minute(nanos int64) int64 { return minuteOf(nanos) }
 
 // totals is an experiment's running sums.
 type totals struct {
