@@ -30,9 +30,17 @@ type Config struct {
 	// Pprof mounts net/http/pprof on the admin listener when true.
 	// Default false.
 	Pprof bool `yaml:"pprof"`
-	// Store is the bbolt file's path, relative to the working directory
-	// unless absolute. Default riffle.db.
+	// Store is where impressions, events and outcomes are kept: a bbolt
+	// file's path (one sidecar), relative to the working directory unless
+	// absolute, or a postgres:// (postgresql://) URL of a database that a
+	// fleet of sidecars shares. Default riffle.db. A URL's password is
+	// redacted wherever the config is shown or logged; better, keep it
+	// out of the config with StorePasswordFile or PGPASSWORD.
 	Store string `yaml:"store"`
+	// StorePasswordFile, when set, names a file holding the database
+	// password for a store URL that carries none (white space trimmed);
+	// without it, PGPASSWORD applies. See StorePassword.
+	StorePasswordFile string `yaml:"store_password_file"`
 	// StoreRetention deletes final impression and event records older than
 	// this; aggregates stay. Zero keeps everything.
 	StoreRetention time.Duration `yaml:"store_retention"`

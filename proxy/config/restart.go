@@ -12,9 +12,10 @@ import (
 // restart`. An empty result means next may be swapped in.
 //
 // Restart-only keys are those bound to resources opened once at start:
-// listen and admin (the listeners), store and store_retention (the open
-// bbolt file and its pruner), queue.size, queue.batch and queue.interval
-// (the group-commit writer), pprof (handlers mounted on the admin mux) and
+// listen and admin (the listeners), store, store_password_file and
+// store_retention (the open store: its file or its connections, and its
+// pruner), queue.size, queue.batch and queue.interval (the group-commit
+// writer), pprof (handlers mounted on the admin mux) and
 // read_header_timeout (set on the listeners' servers).
 // Everything else is live: backends' URLs and timeouts, routes, user,
 // policy, tau, credit, ramp, start, schedule, hedges, window, events,
@@ -41,7 +42,8 @@ func RestartOnly(old, next *Config) []Problem {
 	}
 	str("listen", old.Listen, next.Listen)
 	str("admin", old.Admin, next.Admin)
-	str("store", old.Store, next.Store)
+	str("store", RedactedStore(old.Store), RedactedStore(next.Store))
+	str("store_password_file", old.StorePasswordFile, next.StorePasswordFile)
 	span("store_retention", old.StoreRetention, next.StoreRetention)
 	num("queue.size", old.Queue.Size, next.Queue.Size)
 	num("queue.batch", old.Queue.Batch, next.Queue.Batch)

@@ -43,6 +43,42 @@ func (c *Config) AdminToken() (string, error) {
 	return tok, nil
 }
 
+// StorePassword reads the database password from store_password_file,
+// trimming surrounding white space; "" and no error when none is set.
+func (c *Config) StorePassword() (string, error) {
+	if c.StorePasswordFile == "" {
+		return "", nil
+	}
+	data, err := os.ReadFile(c.StorePasswordFile)
+	if err != nil {
+		return "", fmt.Errorf("config: store password: %w", err)
+	}
+	pw := strings.TrimSpace(string(data))
+	if pw == "" {
+		return "", fmt.Errorf("config: store password: %s is empty", c.StorePasswordFile)
+	}
+	return pw, nil
+}
+
+// IsStoreURL reports whether a store setting names a database.
+func IsStoreURL(s string) bool {
+	l := strings.ToLower(s)
+	return strings.HasPrefix(l, "postgres://") || strings.HasPrefix(l, "postgresql://")
+}
+
+// RedactedStore returns a store setting fit to show: a URL's password
+// masked, a path unchanged.
+func RedactedStore(s string) string {
+	if !IsStoreURL(s) {
+		return s
+	}
+	u, err := url.Parse(s)
+	if err != nil {
+		return "postgres://(a URL that does not parse)"
+	}
+	return u.Redacted()
+}
+
 // checker collects problems.
 type checker struct{ ps []Problem }
 
@@ -73,11 +109,7 @@ func (k *checker) process(c *Config) {
 			k.add("admin_token_file", "cannot be used: %v", strings.TrimPrefix(err.Error(), "config: admin token: "))
 		}
 	}
-	if strings.TrimSpace(c.Store) == "" {
-		k.add("store", "must name a file")
-	} else if fi, err := os.Stat(c.Store); err == nil && fi.IsDir() {
-		k.add("store", "%q is a directory; name a file inside it", c.Store)
-	}
+	k.store(c)
 	k.nonNegative("store_retention", c.StoreRetention)
 	k.positive("queue.size", int64(c.Queue.Size))
 	k.positive("queue.batch", int64(c.Queue.Batch))
@@ -98,6 +130,32 @@ func (k *checker) process(c *Config) {
 	k.positiveDuration("read_body_timeout", c.ReadBodyTimeout)
 	k.nonNegative("feedback.clock_skew", c.Feedback.ClockSkew)
 	k.positiveDuration("feedback.store_wait", c.Feedback.StoreWait)
+}
+
+// store checks store and store_password_file.
+func (k *checker) store(c *Config) {
+	switch {
+	case strings.TrimSpace(c.Store) == "":
+		k.add("store", "must name a file or a postgres:// URL")
+	case IsStoreURL(c.Store):
+		u, err := url.Parse(c.Store)
+		if err != nil || u.Host == "" || strings.Trim(u.Path, "/") == "" {
+			k.add("store", "%s: want postgres://user@host:port/database[?sslmode=...]", RedactedStore(c.Store))
+		}
+	default:
+		if fi, err := os.Stat(c.Store); err == nil && fi.IsDir() {
+			k.add("store", "%q is a directory; name a file inside it", c.Store)
+		}
+		if c.StorePasswordFile != "" {
+			k.add("store_password_file", "is for a postgres:// store; store is the file %q", c.Store)
+			return
+		}
+	}
+	if c.StorePasswordFile != "" {
+		if _, err := c.StorePassword(); err != nil {
+			k.add("store_password_file", "cannot be used: %v", strings.TrimPrefix(err.Error(), "config: store password: "))
+		}
+	}
 }
 
 // addr checks a listen address: host:port with a numeric port; the host may

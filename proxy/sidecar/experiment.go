@@ -2,6 +2,7 @@ package sidecar
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"sync"
 	"time"
@@ -22,6 +23,18 @@ import (
 type Status struct {
 	verdict.Status
 	Guardrail GuardrailState `json:"guardrail"`
+	Store     StoreState     `json:"store"`
+}
+
+// StoreState says whether the counts could be read from the store. While
+// it is unavailable (a shared database down) the status repeats the last
+// counts read, and says since when they are stale.
+type StoreState struct {
+	Available bool `json:"available"`
+	// Error is why the last read failed; empty while available.
+	Error string `json:"error,omitempty"`
+	// Since is when the store became unavailable.
+	Since *time.Time `json:"since,omitempty"`
 }
 
 // GuardrailState says whether a guardrail has halted the challenger.
@@ -102,6 +115,9 @@ func (e *experiment) status() (Status, error) {
 	ctx, cancel := context.WithTimeout(context.Background(), readTimeout)
 	defer cancel()
 	agg, err := e.store.Aggregate(ctx, cfg.Experiment.Name)
+	if errors.Is(err, store.ErrUnavailable) {
+		return e.stale(err), nil
+	}
 	if err != nil {
 		return Status{}, fmt.Errorf("experiment %s: %w", cfg.Experiment.Name, err)
 	}
@@ -118,10 +134,25 @@ func (e *experiment) status() (Status, error) {
 	if err != nil {
 		return Status{}, fmt.Errorf("experiment %s: %w", cfg.Experiment.Name, err)
 	}
-	st := Status{Status: vs}
+	st := Status{Status: vs, Store: StoreState{Available: true}}
 	st.Guardrail.Tripped, st.Guardrail.Trip = e.guard.Tripped()
 	e.cached, e.at = st, time.Now()
 	return st, nil
+}
+
+// stale is the last status computed, marked as read before the store
+// became unavailable (zero counts when none was computed yet). It is
+// cached like a fresh one, so a dashboard does not hammer a down database.
+func (e *experiment) stale(err error) Status {
+	st := e.cached
+	since := time.Now()
+	if !st.Store.Available && st.Store.Since != nil {
+		since = *st.Store.Since
+	}
+	st.Store = StoreState{Available: false, Error: err.Error(), Since: &since}
+	st.Guardrail.Tripped, st.Guardrail.Trip = e.guard.Tripped()
+	e.cached, e.at = st, time.Now()
+	return st
 }
 
 // losing is the losing guardrail's check: the always-valid test says the

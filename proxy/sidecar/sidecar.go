@@ -87,7 +87,11 @@ func ServeSignals(ctx context.Context, path string, logw io.Writer, hup <-chan o
 func Start(path string, cfg *config.Config, log *slog.Logger) (*Sidecar, error) {
 	s := &Sidecar{log: log, reg: prometheus.NewRegistry()}
 	s.reg.MustRegister(collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
-	st, err := open.Live(context.Background(), cfg.Store, open.Options{Store: store.Options{
+	password, err := cfg.StorePassword()
+	if err != nil {
+		return nil, fmt.Errorf("sidecar: %w", err)
+	}
+	st, err := open.Live(context.Background(), cfg.Store, open.Options{Password: password, Store: store.Options{
 		QueueSize: cfg.Queue.Size, Batch: cfg.Queue.Batch, Interval: cfg.Queue.Interval,
 		Rules: rulesOf(cfg), Retention: cfg.StoreRetention, Registerer: s.reg, Logger: log,
 	}})

@@ -151,7 +151,8 @@ async function refresh() {
     showProgress(s, live, hist);
     showPreference(s, hist);
     showPositions(live);
-    set("updated", utc(Date.now())); set("error", "");
+    set("updated", utc(Date.now()));
+    set("error", s.store && !s.store.available ? `store unavailable since ${s.store.since}: the counts are the last read (${s.store.error})` : "");
     document.body.dataset.drawn = String(Number(document.body.dataset.drawn || 0) + 1);
   } catch (e) {
     set("error", String(e));

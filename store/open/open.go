@@ -7,10 +7,10 @@ package open
 
 import (
 	"context"
-	"errors"
 	"strings"
 
 	"riffle/store"
+	"riffle/store/postgres"
 )
 
 // Options configures Live and ReadOnly.
@@ -33,22 +33,20 @@ func IsURL(target string) bool {
 // Live opens target for a sidecar: writable, with its writer and its
 // background finalise-and-retain pass running.
 func Live(ctx context.Context, target string, o Options) (store.Contract, error) {
-	if IsURL(target) {
-		return nil, errNoPostgres
-	}
 	opt := o.Store
 	opt.ReadOnly = false
+	if IsURL(target) {
+		return postgres.Open(ctx, postgres.Config{URL: target, Password: o.Password, Options: opt})
+	}
 	return store.Open(target, &opt)
 }
 
 // ReadOnly opens target for reading only (riffle report, riffle export).
 func ReadOnly(ctx context.Context, target string, o Options) (store.ReadCloser, error) {
-	if IsURL(target) {
-		return nil, errNoPostgres
-	}
 	opt := o.Store
 	opt.ReadOnly = true
+	if IsURL(target) {
+		return postgres.Open(ctx, postgres.Config{URL: target, Password: o.Password, Options: opt})
+	}
 	return store.Open(target, &opt)
 }
-
-var errNoPostgres = errors.New("store: a PostgreSQL URL needs the shared store, which this build does not have yet")
