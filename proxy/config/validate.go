@@ -76,6 +76,10 @@ func RedactedStore(s string) string {
 	if err != nil {
 		return "postgres://(a URL that does not parse)"
 	}
+	if q := u.Query(); q.Has("password") {
+		q.Set("password", "xxxxx") // libpq takes the password as a parameter too
+		u.RawQuery = q.Encode()
+	}
 	return u.Redacted()
 }
 
