@@ -220,6 +220,7 @@ func TestApplyUnderLoad(t *testing.T) {
 	h := newHarness(t, testConfig(inc, chal), Options{})
 	var wg sync.WaitGroup
 	var failures atomic.Int64
+	served := make(chan struct{}, 64) // one token per completed request, while there is room
 	stop := make(chan struct{})
 	for range 4 {
 		wg.Go(func() {
@@ -237,6 +238,10 @@ func TestApplyUnderLoad(t *testing.T) {
 				if resp != nil {
 					resp.Body.Close()
 				}
+				select {
+				case served <- struct{}{}:
+				default:
+				}
 			}
 		})
 	}
@@ -247,7 +252,19 @@ func TestApplyUnderLoad(t *testing.T) {
 		if err := h.srv.Apply(cfg); err != nil {
 			t.Fatal(err)
 		}
-		time.Sleep(5 * time.Millisecond)
+		// Let eight more requests complete before the next Apply, so
+		// traffic runs across every change (a count, not a sleep: a slow
+		// machine just takes longer).
+		for len(served) > 0 {
+			<-served
+		}
+		for range 8 {
+			select {
+			case <-served:
+			case <-time.After(10 * time.Second):
+				t.Fatalf("no request completed within 10s of reload %d", i)
+			}
+		}
 	}
 	close(stop)
 	wg.Wait()

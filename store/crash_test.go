@@ -81,7 +81,22 @@ type acked struct {
 	mu     sync.Mutex
 	ims    map[string]bool   // impression ids Record accepted
 	events map[string]string // idempotency key -> impression id, answered 202
+	// loaded is closed once loadedAt events have been acknowledged: the
+	// child is then under load with work behind it, and may be killed.
+	loaded   chan struct{}
+	loadedAt int
 }
+
+// count returns how many events have been acknowledged.
+func (a *acked) count() int {
+	a.mu.Lock()
+	defer a.mu.Unlock()
+	return len(a.events)
+}
+
+// crashLoad is how many acknowledged events the test waits for before the
+// SIGKILL: 40 of the clients' batches, enough for several group commits.
+const crashLoad = 400
 
 // TestCrashKeepsAcknowledged runs the child under load from four clients,
 // kills it with SIGKILL, and checks the file: consistent, every event that
@@ -108,13 +123,19 @@ func TestCrashKeepsAcknowledged(t *testing.T) {
 	if err != nil || !ok {
 		t.Fatalf("child said %q, %v", line, err)
 	}
-	a := &acked{ims: map[string]bool{}, events: map[string]string{}}
+	a := &acked{ims: map[string]bool{}, events: map[string]string{}, loaded: make(chan struct{}), loadedAt: crashLoad}
 	stop := make(chan struct{})
 	var wg sync.WaitGroup
 	for w := range 4 {
 		wg.Go(func() { drive(t, "http://"+addr, w, a, stop) })
 	}
-	time.Sleep(1500 * time.Millisecond)
+	// Kill once enough is acknowledged, while the clients keep sending;
+	// the deadline only bounds a child that makes no progress.
+	select {
+	case <-a.loaded:
+	case <-time.After(30 * time.Second):
+		t.Fatalf("only %d events acknowledged within 30s, want %d before the kill", a.count(), crashLoad)
+	}
 	if err := child.Process.Kill(); err != nil { // SIGKILL on Unix
 		t.Fatal(err)
 	}
@@ -170,8 +191,12 @@ func drive(t *testing.T, base string, w int, a *acked, stop <-chan struct{}) {
 			return
 		}
 		a.mu.Lock()
+		before := len(a.events)
 		for i, k := range keys {
 			a.events[k] = ids[i-1]
+		}
+		if before < a.loadedAt && len(a.events) >= a.loadedAt {
+			close(a.loaded)
 		}
 		a.mu.Unlock()
 	}

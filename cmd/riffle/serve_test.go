@@ -21,14 +21,43 @@ import (
 // lockedBuffer is a bytes.Buffer safe for the server's logger and the
 // test to share.
 type lockedBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
+	mu      sync.Mutex
+	b       bytes.Buffer
+	changed chan struct{} // closed by the next Write; nil until awaited
 }
 
 func (l *lockedBuffer) Write(p []byte) (int, error) {
 	l.mu.Lock()
 	defer l.mu.Unlock()
+	if l.changed != nil {
+		close(l.changed)
+		l.changed = nil
+	}
 	return l.b.Write(p)
+}
+
+// await returns the first match of re in what was written, waiting for
+// writes until it appears or timeout passes (then nil).
+func (l *lockedBuffer) await(re *regexp.Regexp, timeout time.Duration) []string {
+	deadline := time.NewTimer(timeout)
+	defer deadline.Stop()
+	for {
+		l.mu.Lock()
+		if m := re.FindStringSubmatch(l.b.String()); m != nil {
+			l.mu.Unlock()
+			return m
+		}
+		if l.changed == nil {
+			l.changed = make(chan struct{})
+		}
+		changed := l.changed
+		l.mu.Unlock()
+		select {
+		case <-changed:
+		case <-deadline.C:
+			return nil
+		}
+	}
 }
 
 func (l *lockedBuffer) String() string {
@@ -78,14 +107,11 @@ func TestServeEndToEnd(t *testing.T) {
 	go func() { exit <- run(ctx, []string{"serve", "--config", cfgPath}, io.Discard, &logs) }()
 	defer stop()
 	listen := regexp.MustCompile(`msg="riffle serving" listen=(\S+)`)
-	var addr string
-	for deadline := time.Now().Add(10 * time.Second); addr == ""; time.Sleep(10 * time.Millisecond) {
-		if m := listen.FindStringSubmatch(logs.String()); m != nil {
-			addr = m[1]
-		} else if time.Now().After(deadline) {
-			t.Fatalf("riffle serve did not start: %s", logs.String())
-		}
+	m := logs.await(listen, 10*time.Second)
+	if m == nil {
+		t.Fatalf("riffle serve did not start within 10s: %s", logs.String())
 	}
+	addr := m[1]
 
 	req, _ := http.NewRequest(http.MethodGet, "http://"+addr+"/v1/recommend?context=GS-1001", nil)
 	req.Header.Set("Shopper-Id", "shopper-0042")
