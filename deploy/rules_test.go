@@ -309,12 +309,21 @@ func TestRulesMatchTheStatistics(t *testing.T) {
 			if want := (w+ti/2)/n - 0.5; !ok || !close(delta, want, 1e-12) || !close(delta, st.Delta, 1e-12) {
 				t.Errorf("Delta = %v (recorded %v), want %v; statistics say %v", delta, ok, want, st.Delta)
 			}
-			// The rules' z is 1.959964, the statistics' gonum's quantile:
-			// they differ by 1.5e-8, so the intervals agree to about 1e-8.
+			// The rules' interval is the large-sample score interval with
+			// the observed tie share; the statistics' ci adds a continuity
+			// correction of 1/(4N) and the tie share estimated under each
+			// r, so the two agree to within about 1/N, and the rules'
+			// collapses to a point when every impression tied.
 			lo, _ := get("delta_lower")
 			hi, _ := get("delta_upper")
-			if math.Abs(lo-st.CI.Lo()) > 1e-7 || math.Abs(hi-st.CI.Hi()) > 1e-7 {
-				t.Errorf("Delta interval = %v to %v, statistics' ci %v", lo, hi, st.CI)
+			if tt.ties < int64(n) && (math.Abs(lo-st.CI.Lo()) > 1/n || math.Abs(hi-st.CI.Hi()) > 1/n) {
+				t.Errorf("Delta interval = %v to %v, statistics' ci %v: want within 1/N = %v", lo, hi, st.CI, 1/n)
+			}
+			if lo < st.CI.Lo()-1e-7 || hi > st.CI.Hi()+1e-7 {
+				t.Errorf("Delta interval = %v to %v wider than the statistics' ci %v", lo, hi, st.CI)
+			}
+			if rlo, rhi := scoreWithTies(w, l, ti, 1.959964); !close(lo, rlo-0.5, 1e-9) || !close(hi, rhi-0.5, 1e-9) {
+				t.Errorf("Delta interval = %v to %v, want the closed form %v to %v less 0.5", lo, hi, rlo, rhi)
 			}
 			if tt.ties == 0 {
 				rlo, rhi := wilson(w, n, 1.959964)
@@ -358,4 +367,14 @@ func TestRulesZIsTheNormalQuantile(t *testing.T) {
 	if math.Abs(1.959964-q) > 5e-7 {
 		t.Errorf("1.959964 is not gonum's 0.975 normal quantile %v to six decimals", q)
 	}
+}
+
+// scoreWithTies is the closed form the rules implement: the r with
+// (R - r)^2 <= c (r(1-r) - t/4), c = z^2/N, t the observed tie share.
+func scoreWithTies(w, l, ti, z float64) (float64, float64) {
+	n := w + l + ti
+	r, t := (w+ti/2)/n, ti/n
+	c := z * z / n
+	root := math.Sqrt(max(0, c*(4*r*(1-r)-t+c*(1-t))))
+	return max(0, (2*r+c-root)/(2*(1+c))), min(1, (2*r+c+root)/(2*(1+c)))
 }

@@ -195,8 +195,8 @@ func (f planFlags) size(withFeedback int64) planSize {
 	if f.FeedbackRate <= 0 {
 		return s
 	}
-	interleaved := int64(math.Ceil(float64(withFeedback) / f.FeedbackRate))
-	served := int64(math.Ceil(float64(interleaved) / f.Ramp))
+	interleaved := verdict.CeilCount(float64(withFeedback) / f.FeedbackRate)
+	served := verdict.CeilCount(float64(interleaved) / f.Ramp)
 	s.Interleaved, s.Impressions = &interleaved, &served
 	if f.TrafficPerDay > 0 {
 		days := float64(served) / f.TrafficPerDay
@@ -214,7 +214,7 @@ func writeJSON(w io.Writer, v any) error {
 
 func writePlanText(w io.Writer, r planResult) error {
 	var b strings.Builder
-	fmt.Fprintf(&b, "riffle plan: detect Delta = %g (a win share of %g against 0.5)\n", r.MDE, 0.5+r.MDE)
+	fmt.Fprintf(&b, "riffle plan: detect Delta = %g (a win share of %g against 0.5)\n", r.MDE, math.Round((0.5+r.MDE)*1e12)/1e12)
 	fmt.Fprintf(&b, "alpha %g (two-sided), power %g, ramp %g", r.Alpha, r.Power, r.Ramp)
 	if r.FeedbackRate != nil {
 		fmt.Fprintf(&b, ", feedback rate %g", *r.FeedbackRate)

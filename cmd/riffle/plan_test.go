@@ -133,3 +133,23 @@ func FuzzParseTraffic(f *testing.F) {
 		}
 	})
 }
+
+// 399 impressions with feedback at a feedback rate of 0.57 are exactly 700
+// interleaved impressions (399 = 0.57 * 700); in floating point 399/0.57 is
+// 700.0000000000001, which a plain ceiling turns into 701.
+func TestPlanGuardedCeiling(t *testing.T) {
+	code, out, errOut := runCmd(t, runPlan, "--mde", "0.07", "--feedback-rate", "0.57", "--format", "json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	var r planResult
+	if err := json.Unmarshal([]byte(out), &r); err != nil {
+		t.Fatal(err)
+	}
+	if r.Fixed.WithFeedback != 399 || *r.Fixed.Interleaved != 700 {
+		t.Errorf("fixed: %d with feedback, %d interleaved; want 399 and 700", r.Fixed.WithFeedback, *r.Fixed.Interleaved)
+	}
+	if _, text, _ := runCmd(t, runPlan, "--mde", "0.07", "--feedback-rate", "0.57"); !strings.Contains(text, " 700 ") {
+		t.Errorf("text output lacks 700 interleaved impressions:\n%s", text)
+	}
+}

@@ -1,6 +1,7 @@
 package verdict
 
 import (
+	"cmp"
 	"fmt"
 
 	"riffle/merge"
@@ -67,18 +68,34 @@ func (m moments) variance() float64 {
 }
 
 // clustering holds the variance of the preference share clustered by user
-// and as if impressions were independent.
+// and as if impressions were independent, the sums behind both, the same
+// sums with ties set aside (for the win share), and the users each side
+// won more impressions of.
 type clustering struct {
 	users     int64
 	clustered float64
 	naive     float64
+
+	byUser, single     moments
+	decisive, decided1 moments // ties set aside: by user, and per impression
+	// signs counts users by who won more of their impressions: index 0
+	// the incumbent, 1 neither (even), 2 the challenger.
+	signs [3]int64
 }
 
 // designEffect is clustered over naive variance; 1 when the naive
 // variance is zero (all outcomes alike), since nothing is then inflated.
+// Where the clustered variance cannot be estimated (fewer than two users,
+// or every user with the same share, which with few users is chance
+// rather than evidence of independence) it is the largest a design
+// effect can be, sum n_u^2 / sum n_u, as if every user's impressions
+// were copies of one; so it is never 0.
 func (c clustering) designEffect() float64 {
 	if c.naive <= 0 {
 		return 1
+	}
+	if c.byUser.k < 2 || c.clustered <= 0 {
+		return max(1, c.byUser.nn/c.byUser.n)
 	}
 	return c.clustered / c.naive
 }
@@ -89,11 +106,8 @@ func (c clustering) designEffect() float64 {
 // of one impression each. Per-user counts that are negative or add up to
 // more than the totals are an error wrapping ErrInput.
 func cluster(total [4]int64, users map[uint64][4]int64) (clustering, error) {
-	w, l, t := total[merge.ChallengerWin], total[merge.IncumbentWin], total[merge.Tie]
-	var naive, byUser moments
-	naive.addSingletons(w, l, t)
-	var seen [4]int64
 	var c clustering
+	var seen [4]int64
 	for u, o := range users {
 		if u == 0 {
 			continue
@@ -104,8 +118,10 @@ func cluster(total [4]int64, users map[uint64][4]int64) (clustering, error) {
 		}
 		if uw+ul+ut > 0 {
 			c.users++
+			c.signs[cmp.Compare(uw, ul)+1]++
 		}
-		byUser.addCluster(uw, ul, ut)
+		c.byUser.addCluster(uw, ul, ut)
+		c.decisive.addCluster(uw, ul, 0)
 		seen[merge.ChallengerWin] += uw
 		seen[merge.IncumbentWin] += ul
 		seen[merge.Tie] += ut
@@ -118,8 +134,15 @@ func cluster(total [4]int64, users map[uint64][4]int64) (clustering, error) {
 	rest := func(o merge.Outcome) int64 { return total[o] - seen[o] }
 	rw, rl, rt := rest(merge.ChallengerWin), rest(merge.IncumbentWin), rest(merge.Tie)
 	c.users += rw + rl + rt
-	byUser.addSingletons(rw, rl, rt)
-	c.clustered = byUser.variance()
-	c.naive = naive.variance()
+	c.signs[2] += rw
+	c.signs[0] += rl
+	c.signs[1] += rt
+	c.byUser.addSingletons(rw, rl, rt)
+	c.decisive.addSingletons(rw, rl, 0)
+	w, l, t := total[merge.ChallengerWin], total[merge.IncumbentWin], total[merge.Tie]
+	c.single.addSingletons(w, l, t)
+	c.decided1.addSingletons(w, l, 0)
+	c.clustered = c.byUser.variance()
+	c.naive = c.single.variance()
 	return c, nil
 }

@@ -23,7 +23,7 @@ func ExampleCompute() {
 	fmt.Printf("Delta %+.4f in [%+.4f, %+.4f]\n", s.Delta, s.CI[0], s.CI[1])
 	fmt.Printf("verdict %s, always-valid p < alpha: %v\n", s.Verdict, s.PValue < s.Alpha)
 	// Output:
-	// Delta +0.0364 in [+0.0275, +0.0452]
+	// Delta +0.0364 in [+0.0274, +0.0453]
 	// verdict challenger-better, always-valid p < alpha: true
 }
 

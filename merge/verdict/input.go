@@ -69,6 +69,13 @@ type Input struct {
 	RecentSpan                            time.Duration
 	// Params are the statistical settings.
 	Params Params
+	// Running is the state of the verdict after the previous look, as the
+	// last Status.Running returned it; the zero value means no look yet.
+	Running Running
+	// Now is the time of this look and ConfigHash the hash of the config
+	// in force; both only go into a decision made at this look.
+	Now        time.Time
+	ConfigHash string
 }
 
 // check validates the counts.
@@ -95,7 +102,7 @@ func (in *Input) check() error {
 	if in.RecentSpan < 0 {
 		return fmt.Errorf("%w: recent span %v is negative", ErrInput, in.RecentSpan)
 	}
-	return nil
+	return in.Running.check()
 }
 
 // Duration is a time.Duration that marshals to JSON as its Go duration

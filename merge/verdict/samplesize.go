@@ -39,36 +39,36 @@ func SampleSize(alpha, power, mde float64) (int64, error) {
 	za := zTwoSided(alpha)
 	zb := distuv.UnitNormal.Quantile(power)
 	root := za*0.5 + zb*math.Sqrt(p1*(1-p1))
-	return ceilCount(root * root / (mde * mde)), nil
+	return CeilCount(root * root / (mde * mde)), nil
 }
 
 // SequentialSampleSize returns the approximate number of impressions with
-// feedback after which the always-valid test (the mixture MixtureForMDE(mde)
-// at level alpha) has rejected p = 1/2 with the given power when the true
-// Delta is mde. It is the smallest n at which the test rejects when the
-// challenger's wins are at the (1 - power) quantile of their normal
-// approximation under p1 = 1/2 + mde,
+// feedback after which the always-valid test (the normal mixture riffle
+// tunes for mde, at level alpha) has rejected Delta = 0 with the given
+// power when the true Delta is mde. It is the smallest n at which the test
+// rejects when the challenger's wins are at the (1 - power) quantile of
+// their normal approximation under p1 = 1/2 + mde,
 //
 //	W = n p1 - z(power) sqrt(n p1 (1-p1)),
 //
 // so that the test rejects at n itself with probability about power; since
 // it may have rejected earlier, the power by then is at least that. It
-// assumes no ties.
+// assumes no ties and independent impressions, so that the sum is
+// W - n/2 and its variance process n/4.
 func SequentialSampleSize(alpha, power, mde float64) (int64, error) {
 	if err := checkPlan(alpha, power, mde); err != nil {
 		return 0, err
 	}
-	m := MixtureForMDE(mde)
+	m, err := planMixture(alpha, power, mde)
+	if err != nil {
+		return 0, err
+	}
 	p1 := 0.5 + mde
 	zb := distuv.UnitNormal.Quantile(power)
 	threshold := math.Log(1 / alpha)
 	rejects := func(n float64) bool {
 		w := n*p1 - zb*math.Sqrt(n*p1*(1-p1))
-		if w <= n/2 {
-			return false
-		}
-		l, _ := m.LogLR(w, n-w, 0.5) // counts are valid by construction
-		return l >= threshold
+		return w > n/2 && m.logE(w-n/2, n/4) >= threshold
 	}
 	hi := 1.0
 	for !rejects(hi) {
@@ -86,10 +86,11 @@ func SequentialSampleSize(alpha, power, mde float64) (int64, error) {
 			lo = mid
 		}
 	}
-	return ceilCount(hi), nil
+	return CeilCount(hi), nil
 }
 
-// ceilCount rounds a count up, forgiving float noise just above an integer.
-func ceilCount(x float64) int64 {
+// CeilCount rounds a count up, forgiving float noise just above an
+// integer (so 399/0.57 = 700.0000000001 gives 700, not 701).
+func CeilCount(x float64) int64 {
 	return int64(math.Ceil(x - 1e-9))
 }

@@ -7,17 +7,22 @@ import (
 )
 
 // SignTest is the exact two-sided binomial sign test of the challenger's
-// wins against its losses under p = 0.5. Ties carry no sign and are set
-// aside; TiesSetAside says how many. It is a fixed-sample test: its p-value
-// is valid at one pre-planned look, not when watched live.
+// wins against its losses under p = 0.5, counted in the units Unit names.
+// Status computes it on users (each user counts once, for the side that
+// won more of their impressions), which keeps it valid when one user's
+// impressions are alike; ties (users with as many wins as losses) carry
+// no sign and are set aside. It is a fixed-sample test: its p-value is
+// valid at one pre-planned look, not when watched live.
 type SignTest struct {
 	// PValue is the two-sided exact p-value.
 	PValue float64 `json:"p_value"`
-	// Challenger and Incumbent are the wins of each side.
+	// Challenger and Incumbent are the units each side won.
 	Challenger int64 `json:"challenger"`
 	Incumbent  int64 `json:"incumbent"`
-	// TiesSetAside is the number of ties left out of the test.
+	// TiesSetAside is the number of units left out of the test.
 	TiesSetAside int64 `json:"ties_set_aside"`
+	// Unit is what was counted: "users".
+	Unit string `json:"unit"`
 }
 
 // SignTestPValue returns the exact two-sided p-value of the binomial sign

@@ -3,6 +3,7 @@ package verdict
 import (
 	"fmt"
 	"math"
+	"time"
 
 	"riffle/merge"
 )
@@ -43,8 +44,11 @@ type Status struct {
 	// CI is the fixed-sample interval for Delta at 1 - alpha, variance
 	// clustered by user.
 	CI Interval `json:"ci"`
-	// PValue is the always-valid p-value of the mixture test: safe to watch.
-	PValue  float64 `json:"p_value"`
+	// PValue is the running always-valid p-value: the smallest alpha at
+	// which the running interval CSDelta excludes 0. It only falls, and is
+	// safe to watch.
+	PValue float64 `json:"p_value"`
+	// Verdict is the decision once made (see Decided), else undecided.
 	Verdict Verdict `json:"verdict"`
 	// Needed is how many more impressions with feedback the always-valid
 	// test needs for the planned power at the MDE; 0 once decided.
@@ -71,22 +75,34 @@ type Status struct {
 	WinShare float64 `json:"win_share"`
 	// Wilson is the fixed-sample Wilson interval for WinShare.
 	Wilson Interval `json:"wilson"`
-	// CS is the always-valid confidence sequence for WinShare at 1 - alpha,
-	// the interval matching PValue.
+	// CS is the always-valid confidence sequence for WinShare at 1 - alpha
+	// at this look (ties set aside, clustered by user like CSDelta); the
+	// verdict does not use it.
 	CS Interval `json:"cs"`
-	// CSDelta is the always-valid interval for Delta the verdict uses.
+	// CSDelta is the running always-valid interval for Delta at
+	// 1 - alpha, the one the verdict uses: the intersection over looks.
 	CSDelta Interval `json:"cs_delta"`
 	// NonInferior ("on par or better") says CSDelta's lower end is above
 	// -Margin.
 	NonInferior bool `json:"non_inferior"`
-	// SignTest is the fixed-sample exact sign test, ties set aside.
+	// SignTest is the fixed-sample exact sign test on users, each counted
+	// once for the side that won more of their impressions.
 	SignTest SignTest `json:"sign_test"`
 	// NeededFixed is Needed for a fixed-sample test at one look.
 	NeededFixed int64 `json:"needed_fixed"`
+	// Decided is the record of the look at which the verdict first left
+	// undecided; null until then.
+	Decided *Decision `json:"decided"`
+	// Current is this look's evidence on its own.
+	Current Evidence `json:"current"`
+	// Running is the state to keep and pass back in the next look's
+	// Input.Running.
+	Running Running `json:"-"`
 }
 
-// Compute returns the status of the experiment described by in. Bad counts
-// or parameters give an error wrapping ErrInput.
+// Compute returns the status of the experiment described by in, one look
+// after in.Running. Bad counts or parameters give an error wrapping
+// ErrInput.
 func Compute(in Input) (Status, error) {
 	p, err := in.Params.withDefaults()
 	if err != nil {
@@ -108,13 +124,13 @@ func Compute(in Input) (Status, error) {
 		NoFeedback: o[merge.NoFeedback], Users: cl.users, DesignEffect: cl.designEffect(),
 	}
 	s.WithFeedback = s.Wins.Incumbent + s.Wins.Challenger + s.Wins.Tie
-	if err := s.fixedSample(); err != nil {
+	if err := s.fixedSample(&cl); err != nil {
 		return Status{}, err
 	}
-	if err := s.sequential(); err != nil {
+	if err := s.sequential(&cl, p, in.Running); err != nil {
 		return Status{}, err
 	}
-	s.Verdict, s.Reason = s.decide()
+	s.Verdict, s.Reason = s.decide(in.Now, in.ConfigHash)
 	if err := s.planRest(); err != nil {
 		return Status{}, err
 	}
@@ -131,16 +147,14 @@ func (s *Status) effective(c int64) float64 {
 }
 
 // fixedSample fills Delta, CI, WinShare, Wilson and SignTest.
-func (s *Status) fixedSample() error {
+func (s *Status) fixedSample(cl *clustering) error {
 	w, l, t := s.Wins.Challenger, s.Wins.Incumbent, s.Wins.Tie
 	n := float64(s.WithFeedback)
-	s.CI = Interval{-0.5, 0.5}
 	if n > 0 {
-		r := (float64(w) + float64(t)/2) / n
-		s.Delta = r - 0.5
-		ci := preferenceInterval(r, float64(t)/n, n, max(1, s.DesignEffect), zTwoSided(s.Alpha))
-		s.CI = Interval{ci[0] - 0.5, ci[1] - 0.5}
+		s.Delta = (float64(w)+float64(t)/2)/n - 0.5
 	}
+	ci := preferenceInterval(float64(w), float64(l), float64(t), max(1, s.DesignEffect), zTwoSided(s.Alpha))
+	s.CI = Interval{ci[0] - 0.5, ci[1] - 0.5}
 	s.WinShare = 0.5
 	if w+l > 0 {
 		s.WinShare = float64(w) / float64(w+l)
@@ -149,85 +163,95 @@ func (s *Status) fixedSample() error {
 	if s.Wilson, err = Wilson(s.effective(w), s.effective(w+l), s.Alpha); err != nil {
 		return err
 	}
-	pv, err := SignTestPValue(w, l)
+	ahead, behind, even := cl.signs[2], cl.signs[0], cl.signs[1]
+	pv, err := SignTestPValue(ahead, behind)
 	if err != nil {
 		return err
 	}
-	s.SignTest = SignTest{PValue: pv, Challenger: w, Incumbent: l, TiesSetAside: t}
+	s.SignTest = SignTest{PValue: pv, Challenger: ahead, Incumbent: behind, TiesSetAside: even, Unit: "users"}
 	return nil
 }
 
-// sequential fills PValue, CS, CSDelta and NonInferior.
-func (s *Status) sequential() error {
-	mix := MixtureForMDE(s.MDE)
-	w, l := s.effective(s.Wins.Challenger), s.effective(s.Wins.Incumbent)
-	var err error
-	if s.PValue, err = mix.PValue(w, l); err != nil {
-		return err
-	}
-	if s.CS, err = mix.ConfidenceSequence(w, l, s.Alpha); err != nil {
-		return err
-	}
-	share, err := mix.ConfidenceSequence(w, l, s.Alpha/2)
+// sequential fills PValue, CS, CSDelta, NonInferior, Current and Running
+// from this look and the running state before it.
+func (s *Status) sequential(cl *clustering, p Params, before Running) error {
+	mix, err := planMixture(p.Alpha, p.Power, p.MDE)
 	if err != nil {
 		return err
 	}
-	decisive, err := Mixture{A: 1, B: 1}.ConfidenceSequence(w+l, s.effective(s.Wins.Tie), s.Alpha/2)
-	if err != nil {
-		return err
+	now := look{mix: mix, byUser: cl.byUser, naive: cl.single}
+	iv := now.interval(p.Alpha)
+	s.Current = Evidence{
+		WithFeedback: s.WithFeedback, Users: s.Users, Delta: s.Delta,
+		PValue: now.pValue(), CSDelta: Interval{iv[0] - 0.5, iv[1] - 0.5},
 	}
-	s.CSDelta = deltaBounds(share, decisive)
+	dec := look{mix: mix, byUser: cl.decisive, naive: cl.decided1}
+	s.CS = dec.interval(p.Alpha)
+	s.Running = before
+	if s.WithFeedback > 0 {
+		s.Running = before.fold(s.Current.CSDelta, s.Current.PValue, p)
+	}
+	s.CSDelta, s.PValue = Interval{-0.5, 0.5}, 1
+	if s.Running.Looks > 0 {
+		s.CSDelta, s.PValue = s.Running.CSDelta, s.Running.PValue
+	}
 	s.NonInferior = s.WithFeedback > 0 && s.CSDelta[0] > -s.Margin
+	s.Current.Verdict = rule(s.CSDelta, s.Margin)
 	return nil
 }
 
-// deltaBounds returns the range of Delta = q (p - 1/2) over p in share and
-// q in decisive.
-func deltaBounds(share, decisive Interval) Interval {
-	ends := func(p float64) (float64, float64) {
-		a, b := decisive[0]*(p-0.5), decisive[1]*(p-0.5)
-		return min(a, b), max(a, b)
+// decide applies the verdict rule: the decision already made stands;
+// else the rule on the running interval, recorded as the decision when it
+// is not undecided.
+func (s *Status) decide(now time.Time, hash string) (Verdict, string) {
+	if d := s.Running.Decided; d != nil {
+		s.Decided = d
+		why := fmt.Sprintf("decided %s at %s after %d impressions with feedback (Delta's always-valid interval was [%.4f, %.4f], p = %.3g); a decision is kept",
+			d.Verdict, d.Time.UTC().Format(time.RFC3339), d.WithFeedback, d.CSDelta[0], d.CSDelta[1], d.PValue)
+		if s.Current.Verdict != d.Verdict && s.Current.Verdict != Undecided {
+			why += fmt.Sprintf("; the evidence now also says %s", s.Current.Verdict)
+		}
+		return d.Verdict, why
 	}
-	lo, _ := ends(share[0])
-	_, hi := ends(share[1])
-	return Interval{lo, hi}
-}
-
-// decide applies the verdict rule of the package documentation.
-func (s *Status) decide() (Verdict, string) {
 	if s.WithFeedback == 0 {
 		return Undecided, "no impressions with feedback yet"
 	}
-	significant := s.PValue < s.Alpha
-	leader := "challenger"
-	if s.Wins.Incumbent > s.Wins.Challenger {
-		leader = "incumbent"
+	v := s.Current.Verdict
+	if v == Undecided {
+		return v, s.undecidedReason()
 	}
-	m := s.Margin
-	if m > 0 && s.CSDelta[0] > -m && s.CSDelta[1] < m {
-		why := fmt.Sprintf("Delta's always-valid interval [%.4f, %.4f] lies within the margin (-%.4f, +%.4f)",
-			s.CSDelta[0], s.CSDelta[1], m, m)
-		if significant {
-			why += fmt.Sprintf("; the %s is significantly ahead, but by less than the margin", leader)
-		}
-		return OnPar, why
+	d := &Decision{
+		Verdict: v, Time: now, WithFeedback: s.WithFeedback, Users: s.Users,
+		Delta: s.Delta, PValue: s.PValue, CSDelta: s.CSDelta, ConfigHash: hash,
 	}
-	if significant && s.Wins.Challenger != s.Wins.Incumbent {
-		v := ChallengerBetter
-		if leader == "incumbent" {
-			v = IncumbentBetter
-		}
-		return v, fmt.Sprintf("the always-valid test rejects no difference (p = %.3g < alpha %.3g): the %s won %d impressions, the other side %d",
-			s.PValue, s.Alpha, leader, max(s.Wins.Challenger, s.Wins.Incumbent), min(s.Wins.Challenger, s.Wins.Incumbent))
+	s.Running.Decided, s.Decided = d, d
+	return v, s.decidedReason(v)
+}
+
+// decidedReason says why the rule gave v at this look.
+func (s *Status) decidedReason(v Verdict) string {
+	iv, m := s.CSDelta, s.Margin
+	switch v {
+	case ChallengerBetter:
+		return fmt.Sprintf("Delta's always-valid interval [%.4f, %.4f] lies above 0 (p = %.3g <= alpha %.3g)", iv[0], iv[1], s.PValue, s.Alpha)
+	case IncumbentBetter:
+		return fmt.Sprintf("Delta's always-valid interval [%.4f, %.4f] lies below 0: the incumbent won %d impressions, the challenger %d (p = %.3g <= alpha %.3g)",
+			iv[0], iv[1], s.Wins.Incumbent, s.Wins.Challenger, s.PValue, s.Alpha)
 	}
-	why := fmt.Sprintf("the always-valid test cannot yet tell the two apart (p = %.3g, alpha %.3g)", s.PValue, s.Alpha)
+	return fmt.Sprintf("Delta's always-valid interval [%.4f, %.4f] lies within the margin (-%.4f, +%.4f)", iv[0], iv[1], m, m)
+}
+
+// undecidedReason says why there is no verdict yet.
+func (s *Status) undecidedReason() string {
+	iv, m := s.CSDelta, s.Margin
+	why := fmt.Sprintf("the always-valid test cannot yet tell the two apart: Delta's interval [%.4f, %.4f] holds 0 (p = %.3g, alpha %.3g)", iv[0], iv[1], s.PValue, s.Alpha)
 	if m > 0 && s.NonInferior {
-		why += fmt.Sprintf("; on par or better so far (Delta's always-valid lower end %.4f is above -%.4f)", s.CSDelta[0], m)
+		why += fmt.Sprintf("; on par or better so far (Delta's always-valid lower end %.4f is above -%.4f)", iv[0], m)
 	}
 	if s.CI[0] > 0 || s.CI[1] < 0 {
 		why += "; the fixed-sample interval excludes 0, but is not safe to act on when looked at repeatedly"
 	}
-	return Undecided, why
+	return why
 }
 
 // planRest fills Needed and NeededFixed and, while undecided, adds the
@@ -243,7 +267,7 @@ func (s *Status) planRest() error {
 	}
 	d := max(1, s.DesignEffect)
 	rest := func(total int64) int64 {
-		return max(0, ceilCount(float64(total)*d)-s.WithFeedback)
+		return max(0, CeilCount(float64(total)*d)-s.WithFeedback)
 	}
 	s.NeededFixed, s.Needed = rest(fixed), rest(seq)
 	if s.Verdict != Undecided {
@@ -262,7 +286,8 @@ func (s *Status) planRest() error {
 // marshals to JSON.
 func (s *Status) isFinite() bool {
 	for _, v := range []float64{s.Delta, s.CI[0], s.CI[1], s.PValue, s.DesignEffect, s.WinShare,
-		s.Wilson[0], s.Wilson[1], s.CS[0], s.CS[1], s.CSDelta[0], s.CSDelta[1], s.SignTest.PValue} {
+		s.Wilson[0], s.Wilson[1], s.CS[0], s.CS[1], s.CSDelta[0], s.CSDelta[1], s.SignTest.PValue,
+		s.Current.PValue, s.Current.CSDelta[0], s.Current.CSDelta[1]} {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return false
 		}

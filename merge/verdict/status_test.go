@@ -43,12 +43,13 @@ func TestComputeVerdicts(t *testing.T) {
 		because string // a phrase the reason must hold
 	}{
 		{"nothing yet", Input{}, Undecided, "no impressions with feedback"},
-		{"challenger ahead", Input{Outcomes: outcomes(5000, 4000, 6000, 1000)}, ChallengerBetter, "rejects no difference"},
+		{"challenger ahead", Input{Outcomes: outcomes(5000, 4000, 6000, 1000)}, ChallengerBetter, "lies above 0"},
 		{"incumbent ahead", Input{Outcomes: outcomes(5000, 6000, 4000, 1000)}, IncumbentBetter, "the incumbent won 6000"},
 		{"even, no margin", Input{Outcomes: outcomes(0, 50000, 50000, 10000)}, Undecided, "planned sample for power 0.8 at Delta 0.02 is reached"},
 		{"even, early", Input{Outcomes: outcomes(0, 500, 500, 100)}, Undecided, "more impressions with feedback needed"},
 		{"even, margin 0.02", Input{Outcomes: outcomes(0, 50000, 50000, 10000), Params: Params{Margin: 0.02}}, OnPar, "within the margin"},
-		{"slightly ahead within the margin", Input{Outcomes: outcomes(0, 50000, 52000, 0), Params: Params{Margin: 0.05}}, OnPar, "significantly ahead, but by less than the margin"},
+		// Ahead of 0 takes precedence over within the margin.
+		{"slightly ahead within the margin", Input{Outcomes: outcomes(0, 50000, 52000, 0), Params: Params{Margin: 0.05}}, ChallengerBetter, "lies above 0"},
 		{"few ties only", Input{Outcomes: outcomes(0, 0, 0, 3), Params: Params{Margin: 0.05}}, Undecided, "cannot yet tell"},
 		{"ahead but clustered in few users", Input{Outcomes: outcomes(0, 4000, 6000, 0), Users: blockUsers(outcomes(0, 4000, 6000, 0), 500)}, Undecided, "cannot yet tell"},
 		{"peeking at a fixed-sample interval", Input{Outcomes: outcomes(0, 1000, 1100, 0)}, Undecided, "fixed-sample interval excludes 0"},
@@ -96,7 +97,7 @@ func TestComputeDeltaAndIntervals(t *testing.T) {
 		t.Errorf("win share %v wilson %v, want %v and %v", s.WinShare, s.Wilson, 150.0/270, w)
 	}
 	sign, _ := SignTestPValue(150, 120)
-	if s.SignTest != (SignTest{PValue: sign, Challenger: 150, Incumbent: 120, TiesSetAside: 30}) {
+	if s.SignTest != (SignTest{PValue: sign, Challenger: 150, Incumbent: 120, TiesSetAside: 30, Unit: "users"}) {
 		t.Errorf("sign test %+v, want p %v with 30 ties set aside", s.SignTest, sign)
 	}
 	if s.DesignEffect != 1 || s.Users != 300 {

@@ -100,13 +100,36 @@ func TestWilsonBadInput(t *testing.T) {
 }
 
 // With no ties and no clustering the interval for the preference share is
-// Wilson's (Wilson 1927).
-func TestPreferenceIntervalReducesToWilson(t *testing.T) {
+// Wilson's (Wilson 1927) with a continuity correction c = 1/(4n): its ends
+// solve (p^ -+ c - p)^2 = z^2 p (1-p) / n, the quadratic solved here in
+// closed form, independently of the bisection the code uses.
+func TestPreferenceIntervalReducesToCorrectedWilson(t *testing.T) {
+	z := zTwoSided(0.05)
+	root := func(a, n float64, upper bool) float64 {
+		k := z * z / n
+		b := 2*a + k
+		d := math.Sqrt(b*b - 4*(1+k)*a*a)
+		if upper {
+			return min(1, (b+d)/(2*(1+k)))
+		}
+		return max(0, (b-d)/(2*(1+k)))
+	}
 	for _, c := range newcombe {
-		w, _ := Wilson(c.x, c.n, 0.05)
-		got := preferenceInterval(c.x/c.n, 0, c.n, 1, zTwoSided(0.05))
-		if math.Abs(got.Lo()-w.Lo()) > 1e-12 || math.Abs(got.Hi()-w.Hi()) > 1e-12 {
-			t.Errorf("preferenceInterval(%v/%v) = %v, want Wilson %v", c.x, c.n, got, w)
+		cc := 1 / (4 * c.n)
+		p := c.x / c.n
+		want := Interval{0, 1}
+		if p-cc > 0 {
+			want[0] = root(p-cc, c.n, false)
+		}
+		if p+cc < 1 {
+			want[1] = root(p+cc, c.n, true)
+		}
+		got := preferenceInterval(c.x, c.n-c.x, 0, 1, z)
+		if math.Abs(got.Lo()-want.Lo()) > 1e-12 || math.Abs(got.Hi()-want.Hi()) > 1e-12 {
+			t.Errorf("preferenceInterval(%v/%v) = %v, want corrected Wilson %v", c.x, c.n, got, want)
+		}
+		if w, _ := Wilson(c.x, c.n, 0.05); got.Lo() > w.Lo() || got.Hi() < w.Hi() {
+			t.Errorf("preferenceInterval(%v/%v) = %v narrower than Wilson %v", c.x, c.n, got, w)
 		}
 	}
 }
@@ -134,7 +157,7 @@ func TestPreferenceIntervalLargeSampleIsWald(t *testing.T) {
 	n := float64(w + l + tie)
 	r := (float64(w) + float64(tie)/2) / n
 	z := zTwoSided(0.05)
-	got := preferenceInterval(r, float64(tie)/n, n, cl.designEffect(), z)
+	got := preferenceInterval(float64(w), float64(l), float64(tie), cl.designEffect(), z)
 	half := z * math.Sqrt(cl.clustered)
 	want := Interval{r - half, r + half}
 	if math.Abs(got.Lo()-want.Lo()) > 2e-4 || math.Abs(got.Hi()-want.Hi()) > 2e-4 {
