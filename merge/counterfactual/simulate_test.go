@@ -106,7 +106,7 @@ func TestReplaySimulation(t *testing.T) {
 	r := rand.New(rand.NewPCG(7, 16))
 	qs := simulate.Synthetic(r, 40, 5, 1, 1.2)
 	scenarios := []struct {
-		name  string
+		name string
 		sign int // -1 worse than A, 0 A itself, +1 better
 	}{{"worse", -1}, {"equal", 0}, {"better", 1}}
 	for _, sc := range scenarios {
