@@ -23,6 +23,10 @@ import (
 //	            1 byte team, uvarint RankA, uvarint RankB,
 //	            and with bit 2: PA, PB as 4-byte IEEE 754 each
 //	score       only when final: Incumbent, Challenger as 8-byte IEEE 754
+//	request     only with bit 3: route, method, path, query (uvarint length
+//	            + bytes each), uvarint header count and per header name and
+//	            value (uvarint length + bytes), body (uvarint length +
+//	            bytes), uvarint incumbent and challenger list lengths
 //
 // A 10-slot team-draft impression with 9-byte item ids and a 14-byte
 // experiment name takes 168 bytes (see TestImpressionSize).
@@ -30,6 +34,7 @@ const (
 	flagFinal    = 1 << 0
 	flagSeedID   = 1 << 1
 	flagProbs    = 1 << 2
+	flagRequest  = 1 << 3
 	outcomeShift = 4
 )
 
@@ -62,6 +67,9 @@ func encodeRecord(b []byte, r *record) []byte {
 			break
 		}
 	}
+	if im.Request != nil {
+		flags |= flagRequest
+	}
 	b = append(b, flags)
 	b = binary.AppendVarint(b, im.Time.UnixNano()-idNanos(im.ID[:]))
 	b = appendString(b, im.Experiment)
@@ -86,7 +94,43 @@ func encodeRecord(b []byte, r *record) []byte {
 		b = binary.BigEndian.AppendUint64(b, math.Float64bits(r.Score.Incumbent))
 		b = binary.BigEndian.AppendUint64(b, math.Float64bits(r.Score.Challenger))
 	}
+	if q := im.Request; q != nil {
+		b = appendRequest(b, q)
+	}
 	return b
+}
+
+func appendRequest(b []byte, q *Request) []byte {
+	for _, s := range []string{q.Route, q.Method, q.Path, q.Query} {
+		b = appendString(b, s)
+	}
+	b = binary.AppendUvarint(b, uint64(len(q.Header)))
+	for _, h := range q.Header {
+		b = appendString(appendString(b, h[0]), h[1])
+	}
+	b = binary.AppendUvarint(b, uint64(len(q.Body)))
+	b = append(b, q.Body...)
+	b = binary.AppendUvarint(b, uint64(uint32(q.Lengths[0])))
+	return binary.AppendUvarint(b, uint64(uint32(q.Lengths[1])))
+}
+
+func (d *decoder) request() *Request {
+	q := &Request{Route: d.str("request route"), Method: d.str("request method"),
+		Path: d.str("request path"), Query: d.str("request query")}
+	n := d.uvarint("request header count")
+	if n > uint64(len(d.b)) {
+		d.fail("request header count")
+		return q
+	}
+	for range n {
+		q.Header = append(q.Header, [2]string{d.str("request header"), d.str("request header")})
+	}
+	if body := d.str("request body"); body != "" {
+		q.Body = []byte(body)
+	}
+	q.Lengths[0] = int32(uint32(d.uvarint("request lengths")))
+	q.Lengths[1] = int32(uint32(d.uvarint("request lengths")))
+	return q
 }
 
 // idNanos returns the time stored in the first 8 bytes of an id key.
@@ -187,6 +231,9 @@ func decodeRecord(key, v []byte) (record, error) {
 	if r.Final {
 		r.Score.Incumbent = math.Float64frombits(d.u64("score"))
 		r.Score.Challenger = math.Float64frombits(d.u64("score"))
+	}
+	if flags&flagRequest != 0 {
+		r.Request = d.request()
 	}
 	if d.err == nil && len(d.b) != 0 {
 		d.fail("record length")

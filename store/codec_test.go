@@ -18,6 +18,14 @@ func TestRecordCodecRoundTrip(t *testing.T) {
 		{Impression: *im, Final: true, Outcome: 2, Score: merge.Score{Incumbent: 1.5, Challenger: 3}},
 		{Impression: Impression{ID: fixedID(t0, 1), Time: t0, Experiment: "e", Seed: 99, Fallback: "ramp"}},
 	}
+	kept := *im
+	kept.Request = &Request{Route: "/v1/recommend", Method: "POST", Path: "/v1/recommend", Query: "n=5&lang=en",
+		Header: [][2]string{{"Accept-Language", "en"}, {"X-Region", "north"}}, Body: []byte(`{"basket":["trowel"]}`),
+		Lengths: [2]int32{10, 12}}
+	bare := kept
+	bare.Request = &Request{Method: "GET", Path: "/r", Lengths: [2]int32{1, 1}}
+	tests = append(tests, record{Impression: kept}, record{Impression: kept, Final: true, Outcome: 1,
+		Score: merge.Score{Incumbent: 1}}, record{Impression: bare})
 	for i, want := range tests {
 		b := encodeRecord(nil, &want)
 		got, err := decodeRecord(want.ID[:], b)

@@ -26,6 +26,22 @@ type exportLine struct {
 	Events     []exportEvent `json:"events"`
 	Outcome    string        `json:"outcome"` // "open" until final
 	Score      *exportScore  `json:"score,omitempty"`
+	// Request is the kept request (experiment.keep_requests) of an
+	// interleaved impression; absent when none was kept.
+	Request *ExportRequest `json:"request,omitempty"`
+}
+
+// ExportRequest is a kept request in Export's NDJSON, as riffle replay
+// reads it back. Body is base64 (encoding/json's form of bytes), so any
+// body survives the round trip.
+type ExportRequest struct {
+	Route   string      `json:"route"`
+	Method  string      `json:"method"`
+	Path    string      `json:"path"`
+	Query   string      `json:"query,omitempty"`
+	Header  [][2]string `json:"header,omitempty"`
+	Body    []byte      `json:"body,omitempty"`
+	Lengths [2]int32    `json:"list_lengths"` // incumbent's, challenger's distinct items
 }
 
 type exportSlot struct {
@@ -147,6 +163,10 @@ func exportLineOf(im *Impression, evs []Event, fin *Final) *exportLine {
 	}
 	if im.User != 0 {
 		l.User = hex16(im.User)
+	}
+	if q := im.Request; q != nil {
+		l.Request = &ExportRequest{Route: q.Route, Method: q.Method, Path: q.Path, Query: q.Query,
+			Header: q.Header, Body: q.Body, Lengths: q.Lengths}
 	}
 	for i, s := range im.Slots {
 		l.Slots[i] = exportSlot{Item: s.Item, Team: s.Team.String(), RankIncumbent: s.RankA,

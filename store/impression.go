@@ -30,7 +30,28 @@ type Impression struct {
 	// "challenger-status", "challenger-body", "challenger-connect",
 	// "challenger-empty", "guardrail", ...).
 	Fallback string
+	// Request is the request that produced an interleaved impression, when
+	// the experiment keeps requests; nil otherwise.
+	Request *Request
 }
 
 // Interleaved reports whether the impression showed a merged list.
 func (im *Impression) Interleaved() bool { return im.Fallback == "" }
+
+// Request is what it takes to ask another model the question an
+// interleaved impression answered: kept only with experiment.keep_requests,
+// and deleted with the impression by store_retention.
+type Request struct {
+	// Route is the route's configured path pattern.
+	Route string
+	// Method, Path and Query are the request line's (Query without "?").
+	Method, Path, Query string
+	// Header holds the kept request header fields as name, value pairs.
+	Header [][2]string
+	// Body is the request body.
+	Body []byte
+	// Lengths are the numbers of distinct items in the incumbent's and the
+	// challenger's lists, which the probability of the shown list depends
+	// on once one of them has nothing left to draw.
+	Lengths [2]int32
+}

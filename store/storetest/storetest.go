@@ -35,6 +35,7 @@ func Run(t *testing.T, open Opener) {
 	t.Run("UserSums", func(t *testing.T) { testUserSums(t, open) })
 	t.Run("Retention", func(t *testing.T) { testRetention(t, open) })
 	t.Run("Export", func(t *testing.T) { testExport(t, open) })
+	t.Run("KeptRequest", func(t *testing.T) { testKeptRequest(t, open) })
 	t.Run("UnseenExperiment", func(t *testing.T) { testUnseen(t, open) })
 }
 
