@@ -90,6 +90,7 @@ func (s *Server) putExchange(x *exchange) {
 	x.chal.reset()
 	x.inc.list.doc, x.chal.list.doc = nil, nil
 	x.seedDone = false
+	x.kept = nil
 	s.exchanges.Put(x)
 }
 

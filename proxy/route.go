@@ -61,6 +61,7 @@ func (rt *runtime) incumbentAlone(w http.ResponseWriter, r *http.Request, ro *ro
 // challenger is bounded by its deadline, which its context enforces on
 // the dial, the exchange and the body read alike.
 func (rt *runtime) interleave(w http.ResponseWriter, r *http.Request, ro *route, x *exchange, body []byte) (outcome, reason) {
+	x.kept = rt.keep.of(r, ro.path, body)
 	h := outboundHeader(r)
 	cctx, ccancel := context.WithTimeout(r.Context(), rt.chal.timeout)
 	defer ccancel()
@@ -185,6 +186,10 @@ func (rt *runtime) record(x *exchange, slots []merge.Slot, why reason) {
 	}
 	if why == reasonNone {
 		im.Policy = rt.policy.Name()
+		if q := x.kept; q != nil {
+			q.Lengths = [2]int32{int32(len(x.inc.list.ids)), int32(len(x.chal.list.ids))}
+			im.Request = q
+		}
 	}
 	sink.Record(im)
 }
@@ -202,6 +207,7 @@ type exchange struct {
 	chal     call
 	out      []byte
 	done     chan struct{}
+	kept     *store.Request // the request to keep with the impression, if any
 }
 
 func (x *exchange) seed() uint64 {
@@ -209,4 +215,28 @@ func (x *exchange) seed() uint64 {
 		x.seedVal, x.seedDone = x.id.Seed(), true
 	}
 	return x.seedVal
+}
+
+// of returns the request to keep with an interleaved impression of route,
+// or nil when requests are not kept or this one is over the size bound.
+// It copies what it keeps: the exchange's buffers are reused.
+func (k *keepRequests) of(r *http.Request, route string, body []byte) *store.Request {
+	if !k.on {
+		return nil
+	}
+	size := int64(len(body))
+	q := &store.Request{Route: route, Method: r.Method, Path: r.URL.Path, Query: r.URL.RawQuery}
+	for _, name := range k.headers {
+		for _, v := range r.Header[name] {
+			size += int64(len(name) + len(v))
+			q.Header = append(q.Header, [2]string{name, v})
+		}
+	}
+	if size > k.bytes {
+		return nil
+	}
+	if len(body) > 0 {
+		q.Body = bytes.Clone(body)
+	}
+	return q
 }

@@ -32,6 +32,15 @@ type runtime struct {
 	readBody        time.Duration // read_body_timeout
 	serveChallenger bool
 	user            userSource
+	keep            keepRequests
+}
+
+// keepRequests is experiment.keep_requests: whether and what of a request
+// is stored with its interleaved impression.
+type keepRequests struct {
+	on      bool
+	headers []string // canonical field names
+	bytes   int64
 }
 
 // route is one configured, interleaved route.
@@ -96,6 +105,10 @@ func (s *Server) build(cfg *config.Config) (*runtime, error) {
 	rt.hedge = merge.Hedge{
 		MaxChallengerSlots: cfg.Experiment.MaxChallengerSlots,
 		ChallengerFromSlot: cfg.Experiment.ChallengerFromSlot,
+	}
+	rt.keep = keepRequests{on: cfg.Experiment.KeepRequests, bytes: cfg.Experiment.KeepRequestBytes}
+	for _, h := range cfg.Experiment.KeepHeaders {
+		rt.keep.headers = append(rt.keep.headers, http.CanonicalHeaderKey(h))
 	}
 	rt.user = buildUser(cfg.User, bad)
 	rt.routes = s.buildRoutes(cfg.Routes, bad)

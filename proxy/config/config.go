@@ -193,6 +193,19 @@ type Experiment struct {
 	Margin float64 `yaml:"margin"`
 	// Guardrails halt the challenger automatically.
 	Guardrails Guardrails `yaml:"guardrails"`
+	// KeepRequests stores, with each interleaved impression, the request
+	// that produced it (method, path, query, body and the KeepHeaders), so
+	// that riffle replay can ask a candidate model the same question
+	// later. It stores users' requests: see the README on privacy.
+	// Default false.
+	KeepRequests bool `yaml:"keep_requests"`
+	// KeepHeaders names the request header fields kept with a request;
+	// default none.
+	KeepHeaders []string `yaml:"keep_headers"`
+	// KeepRequestBytes bounds a kept request's body plus kept headers; a
+	// larger request is not kept (the impression is still recorded).
+	// Default 16384.
+	KeepRequestBytes int64 `yaml:"keep_request_bytes"`
 }
 
 // Stage is one step of a staged ramp; both fields are required.

@@ -22,6 +22,7 @@ const (
 	DefaultTimeout            = 200 * time.Millisecond
 	DefaultPolicy             = "team-draft"
 	DefaultTau                = 3.0
+	DefaultKeepRequestBytes   = 16384
 	DefaultCredit             = "linear"
 	DefaultWindow             = 30 * time.Minute
 	DefaultAlpha              = 0.05
@@ -74,6 +75,12 @@ func (e *Experiment) applyDefaults() {
 	setString(&e.Credit, DefaultCredit)
 	if e.Tau == 0 {
 		e.Tau = DefaultTau
+	}
+	if len(e.KeepHeaders) == 0 {
+		e.KeepHeaders = nil
+	}
+	if e.KeepRequestBytes == 0 {
+		e.KeepRequestBytes = DefaultKeepRequestBytes
 	}
 	if e.Ramp == nil {
 		base := 1.0

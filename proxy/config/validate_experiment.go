@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strings"
 )
 
 func (k *checker) experiment(e *Experiment, c *Config) {
@@ -11,6 +12,14 @@ func (k *checker) experiment(e *Experiment, c *Config) {
 	k.oneOf("experiment.policy", e.Policy, "balanced", "team-draft", "probabilistic", "optimized")
 	k.oneOf("experiment.credit", e.Credit, "linear", "inverse-rank")
 	k.above("experiment.tau", e.Tau, 0)
+	if e.KeepRequestBytes < 0 {
+		k.add("experiment.keep_request_bytes", "%d is negative; it bounds a kept request's size", e.KeepRequestBytes)
+	}
+	for i, h := range e.KeepHeaders {
+		if !validHeaderName(h) {
+			k.add(fmt.Sprintf("experiment.keep_headers[%d]", i), "%q is not a header field name (RFC 9110 section 5.1)", h)
+		}
+	}
 	if e.Ramp != nil {
 		k.unit("experiment.ramp", *e.Ramp)
 	}
@@ -135,4 +144,19 @@ func (k *checker) atLeast(path string, v, lo float64) {
 	if !(v >= lo) || math.IsInf(v, 0) {
 		k.add(path, "%g must be a finite number of at least %g", v, lo)
 	}
+}
+
+// validHeaderName reports whether h is an RFC 9110 field name: a token of
+// letters, digits and !#$%&'*+-.^_`|~.
+func validHeaderName(h string) bool {
+	if h == "" {
+		return false
+	}
+	for _, c := range []byte(h) {
+		ok := c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c >= '0' && c <= '9' || strings.IndexByte("!#$%&'*+-.^_`|~", c) >= 0
+		if !ok {
+			return false
+		}
+	}
+	return true
 }
