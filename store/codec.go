@@ -95,12 +95,15 @@ func encodeRecord(b []byte, r *record) []byte {
 		b = binary.BigEndian.AppendUint64(b, math.Float64bits(r.Score.Challenger))
 	}
 	if q := im.Request; q != nil {
-		b = appendRequest(b, q)
+		b = AppendRequest(b, q)
 	}
 	return b
 }
 
-func appendRequest(b []byte, q *Request) []byte {
+// AppendRequest appends a kept request's encoding (the record's request
+// part) to b; DecodeRequest reads it back. The PostgreSQL store keeps it
+// in a column as is.
+func AppendRequest(b []byte, q *Request) []byte {
 	for _, s := range []string{q.Route, q.Method, q.Path, q.Query} {
 		b = appendString(b, s)
 	}
@@ -112,6 +115,20 @@ func appendRequest(b []byte, q *Request) []byte {
 	b = append(b, q.Body...)
 	b = binary.AppendUvarint(b, uint64(uint32(q.Lengths[0])))
 	return binary.AppendUvarint(b, uint64(uint32(q.Lengths[1])))
+}
+
+// DecodeRequest decodes what AppendRequest wrote; a damaged value gives an
+// error wrapping ErrCorrupt.
+func DecodeRequest(v []byte) (*Request, error) {
+	d := decoder{b: v}
+	q := d.request()
+	if d.err == nil && len(d.b) != 0 {
+		d.fail("request length")
+	}
+	if d.err != nil {
+		return nil, fmt.Errorf("request: %w", d.err)
+	}
+	return q, nil
 }
 
 func (d *decoder) request() *Request {

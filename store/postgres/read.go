@@ -127,7 +127,7 @@ func (s *Store) outcomeTotals(ctx context.Context) (map[string][4]int64, error) 
 const exportPage = 1000
 
 const (
-	sqlExportPage = `SELECT id, served_ns, experiment, user_hash, policy, seed, fallback, slots, state, outcome, score_incumbent, score_challenger
+	sqlExportPage = `SELECT id, served_ns, experiment, user_hash, policy, seed, fallback, slots, state, outcome, score_incumbent, score_challenger, request
 FROM riffle_impressions WHERE served_ns >= $1 AND id > $2 ORDER BY id LIMIT $3`
 	sqlEventsOf = `SELECT impression, item, type, at_ns, coalesce(key, '') FROM riffle_events WHERE impression = ANY($1) ORDER BY impression, seq`
 )

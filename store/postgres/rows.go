@@ -60,9 +60,18 @@ func exportPageOf(ctx context.Context, tx pgx.Tx, from int64, after []byte) ([]s
 		var state int16
 		var outcome *int16
 		var inc, chal *float64
-		if err := scanImpression(rows, &r.im, &state, &outcome, &inc, &chal); err != nil {
+		var req []byte
+		if err := scanImpression(rows, &r.im, &state, &outcome, &inc, &chal, &req); err != nil {
 			rows.Close()
 			return nil, fmt.Errorf("read riffle_impressions: %w", err)
+		}
+		if req != nil {
+			q, err := store.DecodeRequest(req)
+			if err != nil {
+				rows.Close()
+				return nil, fmt.Errorf("read riffle_impressions: impression %s: %w", r.im.ID, err)
+			}
+			r.im.Request = q
 		}
 		if state == stateFinal && outcome != nil {
 			r.fin = &store.Final{Outcome: merge.Outcome(*outcome)}

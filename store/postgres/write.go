@@ -14,7 +14,7 @@ import (
 )
 
 // impressionColumns are the columns COPY fills.
-var impressionColumns = []string{"id", "served_ns", "experiment", "instance", "user_hash", "policy", "seed", "fallback", "slots"}
+var impressionColumns = []string{"id", "served_ns", "experiment", "instance", "user_hash", "policy", "seed", "fallback", "slots", "request"}
 
 const (
 	// sqlWritten finds which of a retried batch's impressions are already
@@ -86,7 +86,7 @@ func (s *Store) write(ctx context.Context, batch []*store.Impression, again bool
 				im.Time = im.ID.Time()
 			}
 			rows[i] = []any{im.ID[:], im.Time.UnixNano(), im.Experiment, s.sidecar, int64(im.User),
-				im.Policy, int64(im.Seed), im.Fallback, store.AppendSlots(nil, im.Slots)}
+				im.Policy, int64(im.Seed), im.Fallback, store.AppendSlots(nil, im.Slots), keptRequest(im)}
 			d := deltas[im.Experiment]
 			if d == nil {
 				d = &served{minutes: map[int64]int64{}}
@@ -177,4 +177,13 @@ func addMinutes(ctx context.Context, tx pgx.Tx, experiment string, interleaved, 
 		return fmt.Errorf("add to riffle_minutes %q: %w", experiment, err)
 	}
 	return nil
+}
+
+// keptRequest is the request column of im: its encoded kept request, or
+// NULL.
+func keptRequest(im *store.Impression) any {
+	if im.Request == nil {
+		return nil
+	}
+	return store.AppendRequest(nil, im.Request)
 }
