@@ -62,6 +62,11 @@ type experiment struct {
 	mu     sync.Mutex
 	cached Status
 	at     time.Time
+	// running is the verdict's running state, carried from look to look
+	// in memory (not yet persisted in the store: a restart starts it
+	// afresh), so the live verdict only moves from undecided once.
+	running verdict.Running
+	runFor  string // the experiment running belongs to
 }
 
 func newExperiment(st store.Reader, reg prometheus.Registerer) *experiment {
@@ -130,10 +135,15 @@ func (e *experiment) status() (Status, error) {
 	in := agg.Input(paramsOf(cfg))
 	ramp := e.ramp()
 	in.Ramp = &ramp
+	if e.runFor != cfg.Experiment.Name {
+		e.running, e.runFor = verdict.Running{}, cfg.Experiment.Name
+	}
+	in.Running, in.Now, in.ConfigHash = e.running, time.Now(), cfg.Hash()
 	vs, err := verdict.Compute(in)
 	if err != nil {
 		return Status{}, fmt.Errorf("experiment %s: %w", cfg.Experiment.Name, err)
 	}
+	e.running = vs.Running
 	st := Status{Status: vs, Store: StoreState{Available: true}}
 	st.Guardrail.Tripped, st.Guardrail.Trip = e.guard.Tripped()
 	e.cached, e.at = st, time.Now()
