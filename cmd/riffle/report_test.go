@@ -69,12 +69,24 @@ func plannedTraffic(r *rand.Rand, exp string, n, users int, step time.Duration, 
 // closes it.
 func writeStore(tb testing.TB, path string, imps []planned) {
 	tb.Helper()
-	ctx := context.Background()
-	st, err := store.Open(path, &store.Options{FinalizeEvery: -1, QueueSize: 1 << 16, Batch: 8192,
-		Now: func() time.Time { return reportEpoch }})
+	st, err := store.Open(path, writeOptions())
 	if err != nil {
 		tb.Fatal(err)
 	}
+	fill(tb, st, imps)
+}
+
+// writeOptions are the options writeStore opens a store with.
+func writeOptions() *store.Options {
+	return &store.Options{FinalizeEvery: -1, QueueSize: 1 << 16, Batch: 8192,
+		Now: func() time.Time { return reportEpoch }}
+}
+
+// fill writes the planned impressions and their feedback to st, finalises
+// them all, and closes it.
+func fill(tb testing.TB, st store.Contract, imps []planned) {
+	tb.Helper()
+	ctx := context.Background()
 	var events []store.Event
 	var last time.Time
 	for _, p := range imps {
@@ -122,7 +134,7 @@ func writeStore(tb testing.TB, path string, imps []planned) {
 }
 
 // addEvents records events in chunks, failing on any refused.
-func addEvents(tb testing.TB, st *store.Store, events []store.Event) {
+func addEvents(tb testing.TB, st store.EventAdder, events []store.Event) {
 	tb.Helper()
 	for len(events) > 0 {
 		chunk := events[:min(len(events), 20000)]

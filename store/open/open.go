@@ -42,10 +42,14 @@ func Live(ctx context.Context, target string, o Options) (store.Contract, error)
 }
 
 // ReadOnly opens target for reading only (riffle report, riffle export).
+// o.Store.Timeout is how long to wait for a file's lock; it does not apply
+// to a database.
 func ReadOnly(ctx context.Context, target string, o Options) (store.ReadCloser, error) {
 	opt := o.Store
 	opt.ReadOnly = true
 	if IsURL(target) {
+		opt.Timeout = 0 // a file lock's wait; a database takes its own default bound
+
 		return postgres.Open(ctx, postgres.Config{URL: target, Password: o.Password, Options: opt})
 	}
 	return store.Open(target, &opt)
