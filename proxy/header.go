@@ -63,11 +63,12 @@ func contains(list []string, s string) bool {
 // request in: the client's fields minus hop-by-hop ones, gzip as the only
 // content coding riffle will accept (it must read the list), and the
 // forwarding fields of this hop.
-func outboundHeader(in *http.Request) http.Header {
-	h := make(http.Header, len(in.Header)+4)
+func outboundHeader(in *http.Request, pseudonym string) http.Header {
+	h := make(http.Header, len(in.Header)+5)
 	forwardable(h, in.Header, nil)
 	h["Accept-Encoding"] = []string{"gzip"}
 	addForwarded(h, in)
+	addVia(h, in, pseudonym)
 	return h
 }
 

@@ -81,7 +81,7 @@ func TestOutboundHeaderDropsLowerCaseOption(t *testing.T) {
 	in.Header["X-Debug-Hop"] = []string{"secret"}
 	in.Header["Trailer"] = []string{"X-Checksum"}
 	in.Header["Shopper-Id"] = []string{"u-7"}
-	got := outboundHeader(in)
+	got := outboundHeader(in, "riffle-test")
 	for _, k := range []string{"Connection", "X-Debug-Hop", "Trailer"} {
 		if v, ok := got[k]; ok {
 			t.Errorf("outbound header carries hop-by-hop %s: %q", k, v)

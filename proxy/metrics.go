@@ -21,6 +21,7 @@ type metrics struct {
 	backendDur *prometheus.HistogramVec
 	backendErr *prometheus.CounterVec
 	dropped    *prometheus.CounterVec
+	loops      prometheus.Counter
 	ramp       *rampCollector
 }
 
@@ -62,6 +63,10 @@ func newMetrics(s *Server) *metrics {
 			Name: "riffle_proxy_dropped_elements_total",
 			Help: "List elements dropped because they had no identity at the route's id pointer.",
 		}, []string{"backend"}),
+		loops: prometheus.NewCounter(prometheus.CounterOpts{
+			Name: "riffle_proxy_loops_total",
+			Help: "Requests answered 508 because they already carried this riffle's Via mark: a backend URL leads back to riffle.",
+		}),
 		ramp: &rampCollector{s: s, desc: prometheus.NewDesc("riffle_experiment_ramp_ratio",
 			"Effective ramp: the share of users who get interleaved lists.", []string{"experiment"}, nil)},
 	}
@@ -72,7 +77,7 @@ func (m *metrics) register(reg prometheus.Registerer) error {
 	if reg == nil {
 		return nil
 	}
-	for _, c := range []prometheus.Collector{m.requests, m.duration, m.backendDur, m.backendErr, m.dropped, m.ramp} {
+	for _, c := range []prometheus.Collector{m.requests, m.duration, m.backendDur, m.backendErr, m.dropped, m.loops, m.ramp} {
 		if err := reg.Register(c); err != nil {
 			return fmt.Errorf("proxy: register metrics: %w", err)
 		}

@@ -48,7 +48,7 @@ func (rt *runtime) handle(w http.ResponseWriter, r *http.Request, ro *route, x *
 // called.
 func (rt *runtime) incumbentAlone(w http.ResponseWriter, r *http.Request, ro *route, x *exchange, body []byte, why reason) (outcome, reason) {
 	ctx, cancel := context.WithTimeout(r.Context(), rt.inc.timeout)
-	rt.srv.fetch(ctx, rt.inc, &ro.adapter, r, outboundHeader(r), body, &x.inc)
+	rt.srv.fetch(ctx, rt.inc, &ro.adapter, r, outboundHeader(r, rt.srv.pseudonym), body, &x.inc)
 	cancel()
 	if incumbentFailed(&x.inc) {
 		return rt.incumbentFailure(w, x, false)
@@ -62,7 +62,7 @@ func (rt *runtime) incumbentAlone(w http.ResponseWriter, r *http.Request, ro *ro
 // the dial, the exchange and the body read alike.
 func (rt *runtime) interleave(w http.ResponseWriter, r *http.Request, ro *route, x *exchange, body []byte) (outcome, reason) {
 	x.kept = rt.keep.of(r, ro.path, body)
-	h := outboundHeader(r)
+	h := outboundHeader(r, rt.srv.pseudonym)
 	cctx, ccancel := context.WithTimeout(r.Context(), rt.chal.timeout)
 	defer ccancel()
 	go rt.challenge(cctx, ro, r, h, body, x)

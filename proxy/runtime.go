@@ -227,6 +227,7 @@ func (rt *runtime) passThrough() *httputil.ReverseProxy {
 			// offer it on its own behalf.
 			delete(pr.Out.Header, "Te")
 			addForwarded(pr.Out.Header, pr.In)
+			addVia(pr.Out.Header, pr.In, s.pseudonym)
 		},
 		Transport:  s.transport,
 		BufferPool: &s.copyBufs,

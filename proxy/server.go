@@ -45,6 +45,7 @@ type Server struct {
 	exchanges sync.Pool // *exchange
 	gzip      sync.Pool // *gzip.Reader
 	bodies    budget    // bytes held by backend answer bodies in flight
+	pseudonym string    // this server's name in Via fields
 	copyBufs  bufferPool
 }
 
@@ -71,6 +72,7 @@ func New(o Options) (*Server, error) {
 	if s.maxResponse <= 0 {
 		s.maxResponse = defaultMaxResponseBytes
 	}
+	s.pseudonym = newPseudonym()
 	s.exchanges.New = func() any { return &exchange{done: make(chan struct{}, 1)} }
 	s.m = newMetrics(s)
 	s.incM, s.chalM = s.m.backend("incumbent"), s.m.backend("challenger")
@@ -90,6 +92,11 @@ func New(o Options) (*Server, error) {
 // when it arrives, to its end.
 func (s *Server) Handler() http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		if looped(r.Header, s.pseudonym) {
+			s.m.loops.Inc()
+			writeLoop(w)
+			return
+		}
 		rt := s.rt.Load()
 		bodyDeadline(w, r, rt.readBody)
 		rt.router.ServeHTTP(w, r)

@@ -264,8 +264,20 @@ func pointsAt(u *url.URL, listen string) bool {
 	if strings.EqualFold(lh, h) {
 		return true
 	}
+	if lip, err := netip.ParseAddr(lh); err == nil && lip.IsLoopback() {
+		// localhost names resolve to the loopback address (RFC 6761
+		// section 6.3): http://localhost:8080 reaches 127.0.0.1:8080 and [::1]:8080.
+		return loopbackName(h)
+	}
 	ip, err := netip.ParseAddr(h)
-	return wildcard(lh) && (strings.EqualFold(h, "localhost") || err == nil && ip.IsLoopback())
+	return wildcard(lh) && (loopbackName(h) || err == nil && ip.IsLoopback())
+}
+
+// loopbackName reports whether h is "localhost" or a name under it, which
+// RFC 6761 section 6.3 reserves for the loopback address.
+func loopbackName(h string) bool {
+	h = strings.TrimSuffix(strings.ToLower(h), ".")
+	return h == "localhost" || strings.HasSuffix(h, ".localhost")
 }
 
 func (k *checker) routes(routes []Route) {

@@ -59,6 +59,7 @@ func TestValidateBadValues(t *testing.T) {
 		{"challenger bad port", func(c *Config) { c.Challenger.URL = "http://m:0" }, "challenger.url", `"http://m:0" has port "0"; want a number from 1 to 65535`},
 		{"challenger unparsable", func(c *Config) { c.Challenger.URL = "http://m:7002/%zz" }, "challenger.url", `"http://m:7002/%zz" is not a URL: invalid URL escape "%zz"`},
 		{"challenger loops", func(c *Config) { c.Challenger.URL = "http://127.0.0.1:8080/" }, "challenger.url", `"http://127.0.0.1:8080/" points at riffle's own listen address "127.0.0.1:8080", which would loop`},
+		{"incumbent loops via localhost", func(c *Config) { c.Listen = "127.0.0.1:8080"; c.Incumbent.URL = "http://LocalHost.:8080" }, "incumbent.url", `"http://LocalHost.:8080" points at riffle's own listen address "127.0.0.1:8080", which would loop`},
 		{"challenger loops via loopback", func(c *Config) { c.Listen = "0.0.0.0:8080"; c.Challenger.URL = "http://localhost:8080" }, "challenger.url", `"http://localhost:8080" points at riffle's own listen address "0.0.0.0:8080", which would loop`},
 		{"no routes", func(c *Config) { c.Routes = nil }, "routes", "needs at least one route; without one every request passes through and nothing is compared"},
 		{"route path missing", func(c *Config) { c.Routes[0].Path = "" }, "routes[0].path", `is required, e.g. "/v1/recommend"`},
