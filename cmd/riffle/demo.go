@@ -26,6 +26,9 @@ type demoFlags struct {
 	listen, admin string
 	rate          float64
 	seed          uint64
+	// keep, when set, is the directory the demo's config and store are
+	// written to and left in, for riffle report afterwards.
+	keep string
 }
 
 // runDemo runs a whole experiment on loopback: two embedded backends of an
@@ -41,6 +44,7 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	fs.StringVar(&f.admin, "admin", "127.0.0.1:7464", "riffle's admin address (status page, metrics, API)")
 	fs.Float64Var(&f.rate, "rate", 150, "recommendation requests per second")
 	fs.Uint64Var(&f.seed, "seed", 1, "seed of the shop and the shoppers")
+	fs.StringVar(&f.keep, "keep", "", "keep the demo's riffle.yaml and riffle.db in this directory (created if missing) for riffle report afterwards")
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
 			return 0
@@ -59,11 +63,13 @@ func runDemo(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 }
 
 func demo(ctx context.Context, f demoFlags, stdout, stderr io.Writer) error {
-	dir, err := os.MkdirTemp("", "riffle-demo-")
+	dir, err := demoDir(f.keep)
 	if err != nil {
 		return err
 	}
-	defer os.RemoveAll(dir)
+	if f.keep == "" {
+		defer os.RemoveAll(dir)
+	}
 	cat := shop.NewCatalogue(f.seed)
 	inc, err := startBackend(shop.Backend(cat, "popularity", shop.Popularity, 2*time.Millisecond))
 	if err != nil {
@@ -101,7 +107,30 @@ func demo(ctx context.Context, f demoFlags, stdout, stderr io.Writer) error {
 	if ctx.Err() != nil {
 		return nil
 	}
-	return printTeamClicks(stdout, cfg.Store)
+	if err := printTeamClicks(stdout, cfg.Store); err != nil {
+		return err
+	}
+	if f.keep != "" {
+		fmt.Fprintf(stdout, "\nkept the config and the store in %s; report on them with\n  riffle report --store %s --config %s\n",
+			dir, cfg.Store, path)
+	}
+	return nil
+}
+
+// demoDir returns the directory for the demo's files: keep, created if
+// missing and refused if it already holds a demo store, else a new
+// temporary directory.
+func demoDir(keep string) (string, error) {
+	if keep == "" {
+		return os.MkdirTemp("", "riffle-demo-")
+	}
+	if err := os.MkdirAll(keep, 0o755); err != nil {
+		return "", fmt.Errorf("--keep: %w", err)
+	}
+	if _, err := os.Stat(filepath.Join(keep, "riffle.db")); err == nil {
+		return "", fmt.Errorf("--keep %s: it already holds a riffle.db; give an empty directory so two demos do not mix", keep)
+	}
+	return filepath.Abs(keep)
 }
 
 // printTeamClicks reads the closed store back and counts the events on each

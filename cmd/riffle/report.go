@@ -14,6 +14,7 @@ import (
 	"riffle/merge/verdict"
 	"riffle/proxy/config"
 	"riffle/store"
+	"riffle/store/breakdown"
 	"riffle/store/open"
 )
 
@@ -24,6 +25,10 @@ type reportFlags struct {
 	Format     string
 	Timeout    time.Duration
 	Params     verdict.Params
+	// Window and Events are the attribution settings --config gave; the
+	// store keeps neither.
+	Window time.Duration
+	Events map[string]float64
 }
 
 // storeList is a repeatable --store flag.
@@ -53,7 +58,7 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		}
 		return 2
 	}
-	agg, err := mergeStores(ctx, f.Stores, f.Experiment, f.Timeout)
+	agg, bd, err := mergeStores(ctx, f.Stores, f.Experiment, f.Timeout)
 	if err != nil {
 		fmt.Fprintf(stderr, "riffle report: %v\n", err)
 		return 1
@@ -63,13 +68,18 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		fmt.Fprintf(stderr, "riffle report: experiment %q: %v\n", agg.Experiment, err)
 		return 1
 	}
+	fig, err := figuresOf(st, agg, bd, f)
+	if err != nil {
+		fmt.Fprintf(stderr, "riffle report: experiment %q: %v\n", agg.Experiment, err)
+		return 1
+	}
 	switch f.Format {
 	case "json":
-		err = writeJSON(stdout, st)
+		err = writeJSON(stdout, reportBody{Status: st, reportFigures: fig})
 	case "html":
-		err = writeReportHTML(stdout, st, agg, len(f.Stores))
+		err = writeReportHTML(stdout, st, fig)
 	default:
-		err = writeReportText(stdout, st, len(f.Stores))
+		err = writeReportText(stdout, st, fig)
 	}
 	if err != nil {
 		fmt.Fprintf(stderr, "riffle report: %v\n", err)
@@ -128,8 +138,9 @@ func parseReportFlags(args []string, stderr io.Writer) (reportFlags, error) {
 }
 
 // mergeStores opens every store read-only, picks the experiment and adds
-// up its aggregates over the stores that hold it.
-func mergeStores(ctx context.Context, paths []string, experiment string, timeout time.Duration) (store.Aggregate, error) {
+// up its aggregates, and the breakdown of its impressions, over the stores
+// that hold it.
+func mergeStores(ctx context.Context, paths []string, experiment string, timeout time.Duration) (store.Aggregate, *breakdown.Breakdown, error) {
 	var opened []store.ReadCloser
 	defer func() {
 		for _, s := range opened {
@@ -140,19 +151,19 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 	seen := map[string]string{}   // instance id -> first store with it
 	for _, p := range paths {
 		if err := ctx.Err(); err != nil {
-			return store.Aggregate{}, err
+			return store.Aggregate{}, nil, err
 		}
 		s, err := open.ReadOnly(ctx, p, open.Options{Store: store.Options{Timeout: lockWait(timeout)}})
 		if err != nil {
-			return store.Aggregate{}, openProblem(p, timeout, err)
+			return store.Aggregate{}, nil, openProblem(p, timeout, err)
 		}
 		opened = append(opened, s)
 		if err := notCopy(s, p, seen); err != nil {
-			return store.Aggregate{}, err
+			return store.Aggregate{}, nil, err
 		}
 		names, err := s.Experiments(ctx)
 		if err != nil {
-			return store.Aggregate{}, fmt.Errorf("%s: %w", p, err)
+			return store.Aggregate{}, nil, fmt.Errorf("%s: %w", p, err)
 		}
 		for _, n := range names {
 			held[n] = append(held[n], p)
@@ -160,17 +171,19 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 	}
 	name, err := pickExperiment(held, experiment, paths)
 	if err != nil {
-		return store.Aggregate{}, err
+		return store.Aggregate{}, nil, err
 	}
 	var total store.Aggregate
+	var holding []store.Reader
 	first := true
 	for i, s := range opened {
 		if !slices.Contains(held[name], paths[i]) {
 			continue
 		}
+		holding = append(holding, s)
 		a, err := s.Aggregate(ctx, name)
 		if err != nil {
-			return store.Aggregate{}, fmt.Errorf("%s: experiment %q: %w", paths[i], name, err)
+			return store.Aggregate{}, nil, fmt.Errorf("%s: experiment %q: %w", paths[i], name, err)
 		}
 		if first {
 			total, first = a, false // adopt the first: no copy of its users
@@ -178,7 +191,11 @@ func mergeStores(ctx context.Context, paths []string, experiment string, timeout
 		}
 		total.Add(a)
 	}
-	return total, nil
+	bd, err := readBreakdown(ctx, holding, name)
+	if err != nil {
+		return store.Aggregate{}, nil, fmt.Errorf("experiment %q: %w", name, err)
+	}
+	return total, bd, nil
 }
 
 // paramsFromConfig takes the experiment's name and statistical settings
@@ -202,6 +219,7 @@ func paramsFromConfig(f *reportFlags, fs *flag.FlagSet, path string) error {
 	if !set["experiment"] {
 		f.Experiment = e.Name
 	}
+	f.Window, f.Events = e.Window, e.Events
 	return nil
 }
 
@@ -288,24 +306,20 @@ func pickExperiment(held map[string][]string, experiment string, paths []string)
 
 // writeReportText prints the status for people: a short table and the
 // verdict sentence.
-func writeReportText(w io.Writer, s verdict.Status, stores int) error {
+func writeReportText(w io.Writer, s verdict.Status, fig reportFigures) error {
 	var b strings.Builder
 	level := fmt.Sprintf("%g%%", 100*(1-s.Alpha))
-	plural := "s"
-	if stores == 1 {
-		plural = ""
-	}
-	fmt.Fprintf(&b, "riffle report: %s (%s), %d store%s\n\n", s.Experiment, orDash(s.Policy), stores, plural)
+	fmt.Fprintf(&b, "riffle report: %s (%s), %s\n\n", s.Experiment, orDash(s.Policy), storesRead(fig.Stores))
 	rows := [][2]string{
-		{"impressions", fmt.Sprintf("%s served, %s interleaved", group(s.Impressions), group(s.Interleaved))},
+		{"impressions", fmt.Sprintf("%s served, %s interleaved, %s still inside their window", group(s.Impressions), group(s.Interleaved), group(fig.Open))},
 		{"with feedback", fmt.Sprintf("%s (%s finalised without), %s users, design effect %.2f",
 			group(s.WithFeedback), group(s.NoFeedback), group(s.Users), s.DesignEffect)},
 		{"wins", fmt.Sprintf("challenger %s, incumbent %s, tie %s", group(s.Wins.Challenger), group(s.Wins.Incumbent), group(s.Wins.Tie))},
-		{"Delta", fmt.Sprintf("%+.4f, %s interval [%+.4f, %+.4f] (fixed-sample, clustered by user)", s.Delta, level, s.CI[0], s.CI[1])},
-		{"always-valid", fmt.Sprintf("p = %.3g, Delta in [%+.4f, %+.4f], win share in [%.4f, %.4f] (safe to watch live)",
-			s.PValue, s.CSDelta[0], s.CSDelta[1], s.CS[0], s.CS[1])},
-		{"sign test", fmt.Sprintf("p = %.3g (exact, fixed-sample; %s ties set aside)", s.SignTest.PValue, group(s.SignTest.TiesSetAside))},
-		{"win share", fmt.Sprintf("%.4f, Wilson %s [%.4f, %.4f] (fixed-sample)", s.WinShare, level, s.Wilson[0], s.Wilson[1])},
+		{"always-valid", fmt.Sprintf("p = %s, Delta %+.3f in %s, win share in [%.3f, %.3f] (safe to watch live)",
+			formatP(s.PValue), s.Delta, formatInterval(s.CSDelta), s.CS[0], s.CS[1])},
+		{"fixed-sample", fmt.Sprintf("Delta %s interval %s (clustered by user; one planned look only)", level, formatInterval(s.CI))},
+		{"sign test", fmt.Sprintf("p = %s (exact, fixed-sample; %s ties set aside)", formatP(s.SignTest.PValue), group(s.SignTest.TiesSetAside))},
+		{"win share", fmt.Sprintf("%.3f, Wilson %s [%.3f, %.3f] (fixed-sample)", s.WinShare, level, s.Wilson[0], s.Wilson[1])},
 	}
 	if s.Margin > 0 {
 		rows = append(rows, [2]string{"margin", fmt.Sprintf("%g, on par or better: %s", s.Margin, yesNo(s.NonInferior))})
@@ -320,6 +334,7 @@ func writeReportText(w io.Writer, s verdict.Status, stores int) error {
 		fmt.Fprintf(&b, "  %-15s%s\n", r[0], r[1])
 	}
 	fmt.Fprintf(&b, "\nverdict: %s: %s.\n", s.Verdict, s.Reason)
+	writeFiguresText(&b, fig)
 	_, err := io.WriteString(w, b.String())
 	return err
 }

@@ -1,155 +1,143 @@
 package main
 
 import (
+	"encoding/json"
 	"fmt"
 	"html/template"
 	"io"
-	"math"
-	"slices"
 
 	"riffle/merge/verdict"
-	"riffle/store"
+	"riffle/proxy/status"
 )
 
-// reportPage is the HTML report: the verdict, a table of the numbers, an
-// interval plot of Delta (fixed-sample interval, always-valid interval,
-// margin band) and the outcome counts, all as inline SVG so the page is
-// one self-contained file.
+// reportPage is the HTML report: one self-contained file a team can attach
+// to a promotion decision. The verdict, how it was reached, the numbers and
+// the settings are plain HTML; the charts are drawn from the figures
+// (embedded as JSON) by the same script and style as the live status page,
+// inlined, so the file needs nothing else.
 var reportPage = template.Must(template.New("report").Funcs(template.FuncMap{
-	"f4": func(x float64) string { return fmt.Sprintf("%+.4f", x) },
-	"g4": func(x float64) string { return fmt.Sprintf("%.4g", x) },
+	"delta":    func(x float64) string { return fmt.Sprintf("%+.3f", x) },
+	"interval": formatInterval,
+	"p":        formatP,
+	"count":    group,
+	"f3":       func(x float64) string { return fmt.Sprintf("%.3f", x) },
+	"pct":      func(x float64) string { return fmt.Sprintf("%g%%", 100*x) },
 }).Parse(`<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>riffle report: {{.S.Experiment}}</title>
-<style>
-body{font:14px/1.4 system-ui,sans-serif;margin:1.5rem;color:#1d2a1f}
-table{border-collapse:collapse}td,th{border:1px solid #d9ded4;padding:.25rem .6rem;text-align:right}
-th{background:#eef1ea;text-align:left}.v{font-size:1.2rem;font-weight:bold}
-</style></head><body>
-<h1>riffle report: {{.S.Experiment}}</h1>
-<p>policy {{.S.Policy}} · {{.Stores}} store file(s) · alpha {{.S.Alpha}} · margin {{.S.Margin}}</p>
-<p class="v" id="verdict">{{.S.Verdict}}</p><p id="reason">{{.S.Reason}}</p>
-<h2>Delta and its intervals</h2>
-<svg id="intervals" width="640" height="150" viewBox="0 0 640 150" role="img" aria-label="Delta with intervals">
-{{if .MarginW}}<rect x="{{.MarginX}}" y="10" width="{{.MarginW}}" height="120" fill="#e3ecf7"/>{{end}}
-<line x1="{{.Zero}}" x2="{{.Zero}}" y1="10" y2="130" stroke="#888" stroke-dasharray="4 3"/>
-<text x="10" y="50" font-size="11">interval (1-alpha)</text>
-<line id="ci" x1="{{.CILo}}" x2="{{.CIHi}}" y1="45" y2="45" stroke="#1b5e2b" stroke-width="3"/>
-<text x="10" y="95" font-size="11">always-valid</text>
-<line id="cs" x1="{{.CSLo}}" x2="{{.CSHi}}" y1="90" y2="90" stroke="#2c5aa0" stroke-width="3"/>
-<circle id="delta" cx="{{.D}}" cy="45" r="5" fill="#1b5e2b"/><circle cx="{{.D}}" cy="90" r="5" fill="#2c5aa0"/>
-<text x="{{.Lx}}" y="145" font-size="10">{{f4 .Lo}}</text><text x="{{.Zero}}" y="145" font-size="10">0</text><text x="{{.Hx}}" y="145" font-size="10" text-anchor="end">{{f4 .Hi}}</text>
-</svg>
-<h2>Outcomes</h2>
-<svg id="outcomes" width="640" height="40" viewBox="0 0 640 40" role="img" aria-label="Outcome counts">
-{{range .Bars}}<rect x="{{.X}}" y="5" width="{{.W}}" height="30" fill="{{.Color}}"><title>{{.Label}}: {{.N}}</title></rect>{{end}}
-</svg>
-<p>{{range .Bars}}<span style="color:{{.Color}}">■</span> {{.Label}} {{.N}} &nbsp; {{end}}</p>
-<h2>Numbers</h2>
-<table>
-<tr><th>impressions</th><td>{{.S.Impressions}}</td></tr>
-<tr><th>interleaved</th><td>{{.S.Interleaved}}</td></tr>
-<tr><th>with feedback</th><td>{{.S.WithFeedback}}</td></tr>
-<tr><th>Delta</th><td>{{f4 .S.Delta}}</td></tr>
-<tr><th>interval for Delta (ci)</th><td>[{{f4 (index .S.CI 0)}}, {{f4 (index .S.CI 1)}}]</td></tr>
-<tr><th>always-valid interval for Delta (cs_delta)</th><td>[{{f4 (index .S.CSDelta 0)}}, {{f4 (index .S.CSDelta 1)}}]</td></tr>
-<tr><th>always-valid p-value (p_value)</th><td>{{g4 .S.PValue}}</td></tr>
-<tr><th>sign test p-value, ties set aside (fixed sample)</th><td>{{g4 .S.SignTest.PValue}}</td></tr>
-<tr><th>challenger win share, Wilson interval</th><td>{{g4 .S.WinShare}} [{{g4 (index .S.Wilson 0)}}, {{g4 (index .S.Wilson 1)}}]</td></tr>
-<tr><th>users; design effect</th><td>{{.S.Users}}; {{g4 .S.DesignEffect}}</td></tr>
-<tr><th>still needed (always-valid; fixed-sample)</th><td>{{.S.Needed}}; {{.S.NeededFixed}}</td></tr>
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<link rel="icon" href="data:,"><style>{{.CSS}}</style></head><body>
+<header><h1>riffle report · {{.S.Experiment}}</h1>
+<div class="meta">policy {{.S.Policy}} · {{.Stores}} read · {{count .S.Impressions}} impressions served, {{count .S.Interleaved}} interleaved</div></header>
+<main>
+<section id="verdict-section"><h2>Verdict</h2>
+<div class="decision v-{{.S.Verdict}}"><div><span class="word" id="verdict">{{.S.Verdict}}</span></div>
+<div id="reason">{{.S.Reason}}.</div>
+<div>Δ {{delta .S.Delta}} · always-valid interval {{interval .S.CSDelta}} · always-valid p {{p .S.PValue}} (alpha {{.S.Alpha}}) · {{count .S.WithFeedback}} impressions with feedback from {{count .S.Users}} users</div>
+<div id="how">{{if .F.DecisionPoint}}How it was reached: the always-valid test first left undecided ({{.F.DecisionPoint.Verdict}}) with the impressions served up to {{.F.DecisionPoint.Time.UTC.Format "2006-01-02 15:04:05"}} UTC, at {{count .F.DecisionPoint.WithFeedback}} impressions with feedback (p {{p .F.DecisionPoint.PValue}}, interval {{interval .F.DecisionPoint.CSDelta}}). The always-valid test may be looked at after every impression without inflating false decisions; the fixed-sample numbers below hold only at one planned look.{{else}}How it stands: the always-valid test has not left undecided at any point so far.{{end}}</div></div>
+</section>
+<section><h2>Δ over time</h2><div class="panels"><figure><figcaption>Δ, the preference for the challenger, over the impressions served</figcaption>
+<svg id="chart-delta" width="820" height="300" role="img" aria-label="Delta over time"></svg>
+<div class="legend"><span><i class="solid" style="border-color:var(--delta)"></i>Δ</span><span><i style="background:var(--band);opacity:.5"></i>always-valid interval (the verdict's)</span><span><i class="dash" style="border-color:var(--neutral)"></i>fixed-sample interval (one planned look only)</span></div>
+<p class="note">Cumulative, computed from the store: each point is the statistics over the finalised impressions served up to its time. Above 0 users prefer the challenger's items.</p></figure></div></section>
+<section><h2>Outcomes per day</h2><div class="panels"><figure><figcaption>Interleaved impressions per day (UTC) by outcome</figcaption>
+<svg id="chart-days" width="640" height="240" role="img" aria-label="outcomes per day"></svg>
+<div class="legend"><span><i style="background:var(--challenger)"></i>challenger won</span><span><i style="background:var(--incumbent)"></i>incumbent won</span><span><i style="background:var(--tie)"></i>tie</span><span><i style="background:var(--neutral)"></i>no feedback</span></div></figure>
+<figure><figcaption>Feedback events by type</figcaption><svg id="chart-events" width="440" height="120" role="img" aria-label="events by type"></svg></figure></div></section>
+<section><h2>Why: clicks and purchases by slot position</h2>
+<p class="answer muted">Higher slots get more clicks whichever model filled them; interleaving shares the top slots between the models, so a difference within one position is the models' own.</p>
+<div class="panels" id="positions"></div></section>
+<section><h2>Users</h2><div class="panels"><figure><figcaption>Users by their impressions with feedback</figcaption>
+<svg id="chart-users" width="560" height="230" role="img" aria-label="users by impressions with feedback"></svg>
+<p class="note">Many impressions from few users widen the intervals: the variance is clustered by user (design effect {{f3 .S.DesignEffect}}).</p></figure></div></section>
+<section><h2>Numbers</h2><table class="plain">
+<tr><th>impressions served; interleaved; still inside their window</th><td>{{count .S.Impressions}}; {{count .S.Interleaved}}; {{count .F.Open}}</td></tr>
+<tr><th>with feedback; finalised without</th><td>{{count .S.WithFeedback}}; {{count .S.NoFeedback}}</td></tr>
+<tr><th>wins: challenger, incumbent, tie</th><td>{{count .S.Wins.Challenger}}, {{count .S.Wins.Incumbent}}, {{count .S.Wins.Tie}}</td></tr>
+<tr><th>Δ</th><td>{{delta .S.Delta}}</td></tr>
+<tr><th>always-valid interval for Δ (cs_delta)</th><td>{{interval .S.CSDelta}}</td></tr>
+<tr><th>always-valid p-value (p_value)</th><td>{{p .S.PValue}}</td></tr>
+<tr><th>fixed-sample interval for Δ (ci), one planned look</th><td>{{interval .S.CI}}</td></tr>
+<tr><th>sign test p-value, ties set aside, one planned look</th><td>{{p .S.SignTest.PValue}}</td></tr>
+<tr><th>challenger's win share; Wilson interval, one planned look</th><td>{{f3 .S.WinShare}}; [{{f3 (index .S.Wilson 0)}}, {{f3 (index .S.Wilson 1)}}]</td></tr>
+<tr><th>users; design effect</th><td>{{count .S.Users}}; {{f3 .S.DesignEffect}}</td></tr>
+<tr><th>still needed: always-valid; fixed-sample</th><td>{{count .S.Needed}}; {{count .S.NeededFixed}}</td></tr>
+</table></section>
+<section><h2>Settings and sources</h2><table class="plain" id="settings">
+<tr><th>alpha (two-sided)</th><td>{{.F.Settings.Alpha}}</td></tr>
+<tr><th>margin on Δ</th><td>{{.F.Settings.Margin}}</td></tr>
+<tr><th>planned power; minimum detectable Δ</th><td>{{.F.Settings.Power}}; {{.F.Settings.MDE}}</td></tr>
+<tr><th>interleaving policy</th><td>{{.F.Settings.Policy}}</td></tr>
+<tr><th>attribution window</th><td>{{if .F.Settings.Window}}{{.F.Settings.Window}}{{else}}not given (pass --config){{end}}</td></tr>
+<tr><th>event weights</th><td>{{range $k, $v := .F.Settings.Events}}{{$k}} {{$v}} {{else}}not given (pass --config){{end}}</td></tr>
+<tr><th>stores read</th><td>{{.Stores}}</td></tr>
 </table>
-<h2>Impressions with feedback per user</h2>
-<svg id="users" width="640" height="120" viewBox="0 0 640 120" role="img" aria-label="Impressions per user">
-{{range .Hist}}<rect x="{{.X}}" y="{{.Y}}" width="{{.W}}" height="{{.H}}" fill="#8aa88f"><title>{{.Label}}: {{.N}} users</title></rect>{{end}}
-</svg>
-<p>Bars: users with 1, 2, 3-4, 5-8, 9-16, ... impressions with feedback. Many impressions from few users widen the intervals (design effect).</p>
+<p class="muted">A verdict is evidence, not a decision: check the guardrails, the business metrics and the cautions in riffle's README before promoting a model.</p></section>
+</main>
+<script type="application/json" id="figures">{{.Data}}</script>
+<script>{{.JS}}</script>
+<script>{{.Draw}}</script>
 </body></html>
 `))
 
-type bar struct {
-	X, W  float64
-	Color string
-	Label string
-	N     int64
-}
+// reportDraw draws the report's charts from the embedded figures.
+const reportDraw = `"use strict";
+(() => {
+  const fig = JSON.parse(document.getElementById("figures").textContent);
+  const F = riffleFormat, C = riffleChart;
+  const css = n => getComputedStyle(document.documentElement).getPropertyValue(n).trim();
+  const tl = fig.timeline.filter(p => p.with_feedback > 0);
+  const t = p => Date.parse(p.time);
+  const marks = fig.decision_point ? [{x: t(fig.decision_point), label: "first decided: " + fig.decision_point.verdict}] : [];
+  C.line(document.getElementById("chart-delta"), {
+    x: {time: true, label: "impressions served up to (UTC)"}, y: {label: "Δ (preference for the challenger)", fmt: F.delta, zero: "0: no preference"},
+    bands: [{key: "cs_delta", cls: "band-main", color: css("--band"), points: tl.map(p => [t(p), p.cs_delta[0], p.cs_delta[1]])},
+      {key: "ci", cls: "band-secondary", color: css("--neutral"), points: tl.map(p => [t(p), p.ci[0], p.ci[1]])}],
+    series: [{key: "delta", color: css("--delta"), points: tl.map(p => [t(p), p.delta])}], marks, empty: "no outcomes with feedback",
+  });
+  const days = fig.days.map(d => d.date);
+  const group = (key, color) => ({key, color, values: fig.days.map(d => d.outcomes[key] || 0)});
+  C.bars(document.getElementById("chart-days"), {categories: days, x: {label: "day (UTC)"}, y: {label: "impressions", fmt: F.count}, labels: true,
+    groups: [group("challenger", css("--challenger")), group("incumbent", css("--incumbent")), group("tie", css("--tie")), group("none", css("--neutral"))]});
+  C.hbars(document.getElementById("chart-events"), {rows: Object.keys(fig.events).sort().map(k => ({label: k, value: fig.events[k], color: css("--neutral")})), x: {label: "events"}});
+  const inc = fig.positions.incumbent || [], chal = fig.positions.challenger || [];
+  const cats = Array.from({length: Math.max(inc.length, chal.length)}, (_, i) => String(i + 1));
+  const types = Array.from(new Set([...Object.keys(fig.events), ...Object.keys(fig.settings.events || {})])).sort();
+  const box = document.getElementById("positions");
+  for (const ev of types) {
+    const f = document.createElement("figure");
+    f.innerHTML = '<figcaption></figcaption><svg width="520" height="230" role="img"></svg><div class="legend"><span><i style="background:var(--incumbent)"></i>incumbent\'s slots</span><span><i style="background:var(--challenger)"></i>challenger\'s slots</span></div>';
+    f.querySelector("figcaption").textContent = ev + " rate by position, per model's slots";
+    const svg = f.querySelector("svg"); svg.id = "chart-" + ev + "-positions"; svg.setAttribute("aria-label", ev + " rate by position");
+    box.appendChild(f);
+    const rate = l => cats.map((_, i) => l[i] && l[i].shown > 0 ? (l[i].events[ev] || 0) / l[i].shown : null);
+    const notes = l => cats.map((_, i) => l[i] ? (l[i].events[ev] || 0) + " of " + l[i].shown + " slots" : "not shown");
+    C.bars(svg, {categories: cats, x: {label: "slot position (1 = top)"}, y: {label: ev + " rate (% of slots)", fmt: v => F.pct(v)},
+      groups: [{key: "incumbent", color: css("--incumbent"), values: rate(inc), notes: notes(inc)}, {key: "challenger", color: css("--challenger"), values: rate(chal), notes: notes(chal)}]});
+  }
+  C.bars(document.getElementById("chart-users"), {categories: fig.users_by_feedback.map(u => u.impressions), x: {label: "impressions with feedback per user"},
+    y: {label: "users", fmt: F.count}, labels: true, groups: [{key: "users", color: css("--neutral"), values: fig.users_by_feedback.map(u => u.users)}]});
+  document.body.dataset.drawn = "1";
+})();
+`
 
-type histBar struct {
-	X, Y, W, H float64
-	Label      string
-	N          int
-}
-
+// reportView is what the template reads.
 type reportView struct {
-	S                   verdict.Status
-	Stores              int
-	Lo, Hi              float64
-	Zero, D, CILo, CIHi float64
-	CSLo, CSHi, Lx, Hx  float64
-	MarginX, MarginW    float64
-	Bars                []bar
-	Hist                []histBar
+	S      verdict.Status
+	F      reportFigures
+	Stores string
+	CSS    template.CSS
+	JS     template.JS
+	Draw   template.JS
+	Data   template.JS
 }
 
 // writeReportHTML writes the report as one self-contained HTML page.
-func writeReportHTML(w io.Writer, s verdict.Status, agg store.Aggregate, stores int) error {
-	v := reportView{S: s, Stores: stores}
-	v.Lo = math.Min(-0.05, math.Min(s.CSDelta[0], -s.Margin)-0.01)
-	v.Hi = math.Max(0.05, math.Max(s.CSDelta[1], s.Margin)+0.01)
-	x := func(d float64) float64 { return 120 + (d-v.Lo)/(v.Hi-v.Lo)*500 }
-	v.Zero, v.D, v.CILo, v.CIHi, v.CSLo, v.CSHi = x(0), x(s.Delta), x(s.CI[0]), x(s.CI[1]), x(s.CSDelta[0]), x(s.CSDelta[1])
-	v.Lx, v.Hx = x(v.Lo), x(v.Hi)
-	if s.Margin > 0 {
-		v.MarginX, v.MarginW = x(-s.Margin), x(s.Margin)-x(-s.Margin)
+func writeReportHTML(w io.Writer, s verdict.Status, fig reportFigures) error {
+	data, err := json.Marshal(reportBody{Status: s, reportFigures: fig})
+	if err != nil {
+		return fmt.Errorf("html report: %w", err)
 	}
-	total := s.Wins.Challenger + s.Wins.Incumbent + s.Wins.Tie + s.NoFeedback
-	at := 0.0
-	for _, b := range []bar{{Color: "#1b7f3b", Label: "challenger", N: s.Wins.Challenger}, {Color: "#b3261e", Label: "incumbent", N: s.Wins.Incumbent},
-		{Color: "#c9a227", Label: "tie", N: s.Wins.Tie}, {Color: "#c8cec4", Label: "no feedback", N: s.NoFeedback}} {
-		if total > 0 {
-			b.X, b.W = at, 640*float64(b.N)/float64(total)
-			at += b.W
-		}
-		v.Bars = append(v.Bars, b)
-	}
-	v.Hist = userHistogram(agg)
-	return reportPage.Execute(w, v)
-}
-
-// userHistogram bins users by their impressions with feedback in powers of
-// two: 1, 2, 3-4, 5-8, ...
-func userHistogram(agg store.Aggregate) []histBar {
-	var bins []int
-	for _, c := range agg.Users {
-		n := c[1] + c[2] + c[3]
-		if n == 0 {
-			continue
-		}
-		b := 0
-		for lim := int64(1); n > lim; lim *= 2 {
-			b++
-		}
-		for len(bins) <= b {
-			bins = append(bins, 0)
-		}
-		bins[b]++
-	}
-	if len(bins) == 0 {
-		return nil
-	}
-	top := slices.Max(bins)
-	w := 620 / float64(len(bins))
-	out := make([]histBar, len(bins))
-	for i, n := range bins {
-		h := 100 * float64(n) / float64(top)
-		lo, hi := 1<<max(i-1, 0)+1, 1<<i
-		if i == 0 {
-			lo = 1
-		}
-		label := fmt.Sprintf("%d-%d", lo, hi)
-		if lo == hi {
-			label = fmt.Sprint(lo)
-		}
-		out[i] = histBar{X: 10 + float64(i)*w, Y: 110 - h, W: w * 0.9, H: h, Label: label, N: n}
-	}
-	return out
+	return reportPage.Execute(w, reportView{S: s, F: fig, Stores: storesRead(fig.Stores),
+		CSS: template.CSS(status.StyleSheet()), JS: template.JS(status.ChartScript()),
+		Draw: template.JS(reportDraw), Data: template.JS(data)})
 }

@@ -125,8 +125,9 @@ const riffleChart = (() => {
   }
 
   // bars draws grouped vertical bars: categories along x, one bar per
-  // group in each. spec: {categories, x: {label}, y: {label, fmt},
-  // groups: [{key, color, values}]}
+  // group in each, with its value above it when labels is set.
+  // spec: {categories, x: {label}, y: {label, fmt}, labels,
+  //        groups: [{key, color, values, notes}]}
   function bars(svg, spec) {
     const vals = spec.groups.flatMap(g => g.values).filter(v => v !== null);
     if (spec.categories.length === 0 || vals.length === 0) { empty(svg, spec.empty || "no data yet"); return; }
@@ -143,6 +144,7 @@ const riffleChart = (() => {
         if (v === null || v === undefined) return;
         const r = el(svg, "rect", {x: f.x0 + cw * i + cw * 0.1 + bw * j, y: y(v), width: bw * 0.92, height: f.y0 - y(v), class: "datum bar", "data-key": g.key, fill: g.color});
         el(r, "title", {}, `${g.key} ${c}: ${spec.y.fmt(v)}${g.notes ? " (" + g.notes[i] + ")" : ""}`);
+        if (spec.labels) el(svg, "text", {x: f.x0 + cw * i + cw * 0.1 + bw * (j + 0.46), y: y(v) - 3, "text-anchor": "middle", class: "count"}, spec.y.fmt(v));
       });
     });
     el(svg, "line", {x1: f.x0, x2: f.x1, y1: f.y0, y2: f.y0, class: "axis"});
@@ -166,7 +168,7 @@ const riffleChart = (() => {
       const py = f.y1 + 22 * i;
       el(svg, "text", {x: left - 6, y: py + 14, "text-anchor": "end", class: "row-label"}, r.label);
       el(svg, "rect", {x: left, y: py + 3, width: Math.max(1, x(r.value) - left), height: 15, class: "datum bar", fill: r.color});
-      el(svg, "text", {x: x(r.value) + 4, y: py + 15, class: "count"}, String(r.value));
+      el(svg, "text", {x: x(r.value) + 4, y: py + 15, class: "count"}, Number(r.value).toLocaleString("en-US"));
     });
     el(svg, "text", {x: (left + f.x1) / 2, y: f.H - 6, "text-anchor": "middle", class: "axis-title"}, spec.x.label);
   }

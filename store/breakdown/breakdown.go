@@ -16,10 +16,13 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"slices"
 	"strconv"
+	"strings"
 	"time"
 
 	"riffle/merge"
+	"riffle/store"
 )
 
 // Teams whose slots are counted by position, as the export names them.
@@ -47,6 +50,8 @@ type Day struct {
 
 // Final is one finalised interleaved impression, for Timeline.
 type Final struct {
+	// ID is the impression's id; ids sort by the time they were made.
+	ID store.ID
 	// Time is when the impression was served.
 	Time time.Time
 	// User is the hashed user key; 0 when the impression had none.
@@ -77,6 +82,7 @@ type Breakdown struct {
 
 // line is the part of an export line Read needs.
 type line struct {
+	Impression string `json:"impression"`
 	Time       string `json:"time"`
 	Experiment string `json:"experiment"`
 	User       string `json:"user"`
@@ -171,7 +177,11 @@ func (b *Breakdown) final(l *line, t time.Time) error {
 		}
 		user = u
 	}
-	b.Finals = append(b.Finals, Final{Time: t, User: user, Outcome: o})
+	id, err := store.ParseID(l.Impression)
+	if err != nil {
+		return fmt.Errorf("impression %q: %v", l.Impression, err)
+	}
+	b.Finals = append(b.Finals, Final{ID: id, Time: t, User: user, Outcome: o})
 	return nil
 }
 
@@ -211,4 +221,33 @@ func (p Position) Rate(event string) float64 {
 		return 0
 	}
 	return float64(p.Events[event]) / float64(p.Shown)
+}
+
+// Add folds o into b, as when reading the stores of several sidecars; the
+// finals stay in the order one store holding all the impressions would
+// export them (by id).
+func (b *Breakdown) Add(o *Breakdown) {
+	b.Impressions += o.Impressions
+	b.Interleaved += o.Interleaved
+	b.Open += o.Open
+	for t, n := range o.Events {
+		b.Events[t] += n
+	}
+	for team, ps := range o.Positions {
+		for i, p := range ps {
+			mine := b.position(team, i)
+			mine.Shown += p.Shown
+			for t, n := range p.Events {
+				mine.Events[t] += n
+			}
+		}
+	}
+	for _, d := range o.Days {
+		for k, n := range d.Outcomes {
+			b.day(d.Date)[k] += n
+		}
+	}
+	slices.SortFunc(b.Days, func(x, y Day) int { return strings.Compare(x.Date, y.Date) })
+	b.Finals = append(b.Finals, o.Finals...)
+	slices.SortFunc(b.Finals, func(x, y Final) int { return bytes.Compare(x.ID[:], y.ID[:]) })
 }

@@ -2,27 +2,38 @@ package breakdown
 
 import (
 	"errors"
+	"reflect"
 	"strings"
 	"testing"
 	"time"
 
 	"riffle/merge"
 	"riffle/merge/verdict"
+	"riffle/store"
 )
 
 // exportLines are four impressions in store.Export's line format: two
 // interleaved ones finalised, one still open, and one incumbent-only.
-const exportLines = `{"impression":"a","time":"2026-03-14T09:00:00Z","experiment":"seedling","user":"00000000000000aa","seed":"1","slots":[{"item":"x","team":"incumbent"},{"item":"y","team":"challenger"},{"item":"z","team":"challenger"}],"events":[{"item":"y","event":"click","time":"2026-03-14T09:00:05Z","slot":2},{"item":"y","event":"purchase","time":"2026-03-14T09:00:09Z","slot":2}],"outcome":"challenger"}
-{"impression":"b","time":"2026-03-14T23:59:59Z","experiment":"seedling","user":"00000000000000bb","seed":"2","slots":[{"item":"y","team":"challenger"},{"item":"x","team":"incumbent"}],"events":[{"item":"x","event":"click","time":"2026-03-15T00:00:01Z","slot":2}],"outcome":"incumbent"}
-{"impression":"c","time":"2026-03-15T08:00:00Z","experiment":"seedling","seed":"3","slots":[{"item":"x","team":"incumbent"},{"item":"y","team":"challenger"}],"events":[{"item":"x","event":"click","time":"2026-03-15T08:00:01Z","slot":1}],"outcome":"open"}
-{"impression":"d","time":"2026-03-15T08:00:01Z","experiment":"seedling","seed":"4","fallback":"ramp","slots":[{"item":"x","team":"incumbent"}],"events":[{"item":"x","event":"click","time":"2026-03-15T08:00:03Z","slot":1}],"outcome":"none"}
-{"impression":"e","time":"2026-03-15T08:00:02Z","experiment":"other","seed":"5","slots":[{"item":"x","team":"incumbent"}],"events":[],"outcome":"none"}
+const exportLines = `{"impression":"{A}","time":"2026-03-14T09:00:00Z","experiment":"seedling","user":"00000000000000aa","seed":"1","slots":[{"item":"x","team":"incumbent"},{"item":"y","team":"challenger"},{"item":"z","team":"challenger"}],"events":[{"item":"y","event":"click","time":"2026-03-14T09:00:05Z","slot":2},{"item":"y","event":"purchase","time":"2026-03-14T09:00:09Z","slot":2}],"outcome":"challenger"}
+{"impression":"{B}","time":"2026-03-14T23:59:59Z","experiment":"seedling","user":"00000000000000bb","seed":"2","slots":[{"item":"y","team":"challenger"},{"item":"x","team":"incumbent"}],"events":[{"item":"x","event":"click","time":"2026-03-15T00:00:01Z","slot":2}],"outcome":"incumbent"}
+{"impression":"{C}","time":"2026-03-15T08:00:00Z","experiment":"seedling","seed":"3","slots":[{"item":"x","team":"incumbent"},{"item":"y","team":"challenger"}],"events":[{"item":"x","event":"click","time":"2026-03-15T08:00:01Z","slot":1}],"outcome":"open"}
+{"impression":"{D}","time":"2026-03-15T08:00:01Z","experiment":"seedling","seed":"4","fallback":"ramp","slots":[{"item":"x","team":"incumbent"}],"events":[{"item":"x","event":"click","time":"2026-03-15T08:00:03Z","slot":1}],"outcome":"none"}
+{"impression":"{E}","time":"2026-03-15T08:00:02Z","experiment":"other","seed":"5","slots":[{"item":"x","team":"incumbent"}],"events":[],"outcome":"none"}
 `
+
+// fixture returns exportLines with real impression ids.
+func fixture() string {
+	var pairs []string
+	for i, k := range []string{"{A}", "{B}", "{C}", "{D}", "{E}"} {
+		pairs = append(pairs, k, store.NewID(time.Date(2026, 3, 14, 9, 0, i, 0, time.UTC)).String())
+	}
+	return strings.NewReplacer(pairs...).Replace(exportLines)
+}
 
 // TestReadCountsByHand checks every count against the lines above,
 // counted by hand.
 func TestReadCountsByHand(t *testing.T) {
-	b, err := Read(strings.NewReader(exportLines), "seedling")
+	b, err := Read(strings.NewReader(fixture()), "seedling")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -60,9 +71,33 @@ func TestReadCountsByHand(t *testing.T) {
 		b.Days[1].Date != "2026-03-15" || b.Days[1].Outcomes["open"] != 1 {
 		t.Errorf("days %+v, want 2026-03-14 {challenger 1, incumbent 1}, 2026-03-15 {open 1}", b.Days)
 	}
-	want := []Final{{time.Date(2026, 3, 14, 9, 0, 0, 0, time.UTC), 0xaa, merge.ChallengerWin}, {time.Date(2026, 3, 14, 23, 59, 59, 0, time.UTC), 0xbb, merge.IncumbentWin}}
+	want := []Final{{Time: time.Date(2026, 3, 14, 9, 0, 0, 0, time.UTC), User: 0xaa, Outcome: merge.ChallengerWin},
+		{Time: time.Date(2026, 3, 14, 23, 59, 59, 0, time.UTC), User: 0xbb, Outcome: merge.IncumbentWin}}
 	if len(b.Finals) != 2 || !b.Finals[0].Time.Equal(want[0].Time) || b.Finals[0].User != want[0].User || b.Finals[0].Outcome != want[0].Outcome || b.Finals[1].Outcome != want[1].Outcome {
 		t.Errorf("finals %+v, want %+v", b.Finals, want)
+	}
+}
+
+// TestAddEqualsOneRead checks that reading the lines in two parts and
+// adding them gives what reading them at once does.
+func TestAddEqualsOneRead(t *testing.T) {
+	fx := fixture()
+	lines := strings.SplitAfter(fx, "\n")
+	whole, err := Read(strings.NewReader(fx), "seedling")
+	if err != nil {
+		t.Fatal(err)
+	}
+	first, err := Read(strings.NewReader(lines[1]+lines[3]), "seedling")
+	if err != nil {
+		t.Fatal(err)
+	}
+	second, err := Read(strings.NewReader(lines[0]+lines[2]+lines[4]), "seedling")
+	if err != nil {
+		t.Fatal(err)
+	}
+	first.Add(second)
+	if !reflect.DeepEqual(first, whole) {
+		t.Errorf("added:\n%+v\nread at once:\n%+v", first, whole)
 	}
 }
 

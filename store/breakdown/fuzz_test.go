@@ -9,7 +9,7 @@ import (
 // that what reads is consistent: open and finalised impressions never
 // outnumber the interleaved ones.
 func FuzzRead(f *testing.F) {
-	for _, l := range strings.Split(exportLines, "\n") {
+	for _, l := range strings.Split(fixture(), "\n") {
 		f.Add(l)
 	}
 	f.Add(`{"experiment":"seedling","time":"2026-03-14T09:00:00Z","slots":[{"team":"challenger"}],"events":[{"event":"click","slot":9}],"outcome":"tie"}`)

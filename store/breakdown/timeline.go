@@ -30,46 +30,53 @@ type Decision struct {
 // first) at about n evenly spaced points, the last one over all of them,
 // and the first prefix at which the verdict was no longer undecided (nil
 // if it never was), found exactly by bisection between the points around
-// it. Delta and its intervals are computed as verdict.Compute does, with the
-// variance clustered by user.
+// it. A prefix always ends at a change of time, so impressions served at
+// one instant count together whatever their order. Delta and its
+// intervals are computed as verdict.Compute does, with the variance
+// clustered by user.
 func Timeline(finals []Final, p verdict.Params, n int) ([]Point, *Decision, error) {
-	if len(finals) == 0 {
+	var ends []int // prefix lengths that end at a change of time
+	for k := 1; k <= len(finals); k++ {
+		if k == len(finals) || !finals[k].Time.Equal(finals[k-1].Time) {
+			ends = append(ends, k)
+		}
+	}
+	if len(ends) == 0 {
 		return nil, nil, nil
 	}
-	n = max(1, min(n, len(finals)))
+	n = max(1, min(n, len(ends)))
 	var pts []Point
-	prev, firstDecided := 0, -1
+	prev, decided := -1, -1 // indexes into ends
 	for i := 1; i <= n; i++ {
-		k := i * len(finals) / n
-		pt, err := at(finals, k, p)
+		e := i*len(ends)/n - 1
+		pt, err := at(finals, ends[e], p)
 		if err != nil {
 			return nil, nil, err
 		}
-		if firstDecided < 0 && pt.Verdict != verdict.Undecided {
-			firstDecided = k
-			if firstDecided, err = bisect(finals, prev, k, p); err != nil {
+		if decided < 0 && pt.Verdict != verdict.Undecided {
+			if decided, err = bisect(finals, ends, prev, e, p); err != nil {
 				return nil, nil, err
 			}
 		}
 		pts = append(pts, pt)
-		prev = k
+		prev = e
 	}
-	if firstDecided < 0 {
+	if decided < 0 {
 		return pts, nil, nil
 	}
-	pt, err := at(finals, firstDecided, p)
+	pt, err := at(finals, ends[decided], p)
 	if err != nil {
 		return nil, nil, err
 	}
-	return pts, &Decision{Point: pt, Finals: firstDecided}, nil
+	return pts, &Decision{Point: pt, Finals: ends[decided]}, nil
 }
 
-// bisect returns the smallest prefix in (lo, hi] whose verdict is decided,
-// given that hi's is.
-func bisect(finals []Final, lo, hi int, p verdict.Params) (int, error) {
+// bisect returns the smallest index e in (lo, hi] of ends whose prefix's
+// verdict is decided, given that hi's is.
+func bisect(finals []Final, ends []int, lo, hi int, p verdict.Params) (int, error) {
 	for hi-lo > 1 {
 		mid := (lo + hi) / 2
-		pt, err := at(finals, mid, p)
+		pt, err := at(finals, ends[mid], p)
 		if err != nil {
 			return 0, err
 		}
